@@ -1,0 +1,199 @@
+//! `tapmodes analyze`: a recording in, a mode list out.
+
+use super::args::{AnalysisArgs, ChannelArgs};
+use super::report;
+use crate::error::Result;
+use crate::pipeline::{Analysis, analyse_source};
+use crate::run::{RunFile, Variant, write_run_files};
+use crate::signal::RoleChoice;
+use crate::source::Source;
+use crate::source::wav::WavSource;
+use clap::Args;
+use std::path::{Path, PathBuf};
+
+#[derive(Debug, Args)]
+pub struct AnalyzeArgs {
+    /// A WAV recording (any PCM or 32-bit float WAV), or a run JSON to re-analyse with its
+    /// stored settings and operator verdicts.
+    #[arg(value_name = "INPUT")]
+    pub input: PathBuf,
+    /// Where to write the mode list (JSON); the FRF CSV goes beside it with the same stem
+    /// [default: NAME.modes.json beside a WAV, NAME.again.json beside a run file].
+    #[arg(long, short, value_name = "OUT.json")]
+    pub out: Option<PathBuf>,
+    /// Variant label stored in the mode list [default: the input's file stem].
+    #[arg(long, value_name = "LABEL")]
+    pub variant: Option<String>,
+    /// Free-text note stored with the variant.
+    #[arg(long, default_value = "", value_name = "TEXT")]
+    pub note: String,
+    /// Also print every hit with its verdict.
+    #[arg(long)]
+    pub hits: bool,
+    #[command(flatten)]
+    pub channels: ChannelArgs,
+    #[command(flatten)]
+    pub analysis: AnalysisArgs,
+}
+
+/// Open a WAV with the channel options applied (scales, units, names).
+pub fn open_wav(path: &Path, ch: &ChannelArgs, choice: &RoleChoice) -> Result<WavSource> {
+    let mut src = WavSource::open(path)?;
+    let roles = choice.resolve(src.info())?;
+    if let (Some(f), Some(scale)) = (roles.force, ch.force_scale) {
+        src.calibrate(f, ch.force_unit.as_deref().unwrap_or("N"), scale);
+    } else if let (Some(f), Some(unit)) = (roles.force, &ch.force_unit) {
+        src.calibrate(f, unit, 1.0);
+    }
+    let resp_unit = ch.response_unit.as_deref();
+    for c in std::iter::once(roles.response).chain(roles.base) {
+        match (ch.response_scale, resp_unit) {
+            (Some(s), u) => src.calibrate(c, u.unwrap_or("g"), s),
+            (None, Some(u)) => src.calibrate(c, u, 1.0),
+            (None, None) => {}
+        }
+    }
+    Ok(src)
+}
+
+pub fn run(a: &AnalyzeArgs) -> Result<()> {
+    let is_json = a
+        .input
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("json"));
+    let out = a.out.clone().unwrap_or_else(|| default_out(&a.input));
+    let (analysis, wav, variant) = if is_json {
+        reanalyse(&a.input)?
+    } else {
+        let choice = a.channels.role_choice();
+        let mut src = open_wav(&a.input, &a.channels, &choice)?;
+        let roles = choice.resolve(src.info())?;
+        let analysis = analyse_source(&mut src, roles, a.analysis.config()?, false)?;
+        let label = a.variant.clone().unwrap_or_else(|| stem(&a.input));
+        (
+            analysis,
+            a.input.clone(),
+            Variant {
+                label,
+                note: a.note.clone(),
+            },
+        )
+    };
+    finish(&analysis, variant, &out, &wav, a.hits)
+}
+
+/// Re-run a saved run: same recording, same settings, same operator verdicts.
+fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
+    let saved = RunFile::load(json)?;
+    let wav = saved.wav_path(json).ok_or_else(|| {
+        crate::error::Error::new(format!("'{}' does not name a recording", json.display()))
+    })?;
+    let mut src = WavSource::open(&wav)?;
+    for (i, c) in saved.setup.channels.iter().enumerate() {
+        if saved
+            .recording
+            .as_ref()
+            .is_some_and(|r| r.encoding.starts_with("counts"))
+        {
+            src.calibrate(i, &c.unit, c.scale);
+        } else {
+            src.calibrate(i, &c.unit, 1.0);
+        }
+        src.set_channel(i, &c.name, c.role);
+    }
+    let s = &saved.setup;
+    let cfg = crate::pipeline::AnalysisConfig {
+        trigger: crate::pipeline::TriggerChoice {
+            channel: Some(s.trigger.channel),
+            level: s.trigger.level,
+            pretrigger_s: s.trigger.pretrigger_s,
+            record_s: s.trigger.record_s,
+            holdoff_s: s.trigger.holdoff_s,
+        },
+        checks: s.checks.clone(),
+        spectra: crate::spectra::SpectraConfig {
+            windows: s.windows.clone(),
+            pad: s.fft.zero_pad,
+        },
+        modes: s.mode_search.clone(),
+        estimator: s.estimator,
+        basis: Some(s.basis),
+    };
+    let mut analysis = analyse_source(&mut src, s.roles, cfg, true)?;
+    analysis.apply_verdicts(&saved.hits);
+    Ok((analysis, wav, saved.variant))
+}
+
+fn finish(
+    analysis: &Analysis,
+    variant: Variant,
+    out: &Path,
+    wav: &Path,
+    show_hits: bool,
+) -> Result<()> {
+    let fs = analysis.info().sample_rate;
+    let hits = analysis.hits();
+    if hits.is_empty() {
+        crate::fail!(
+            "no hit found in '{}': the trigger never fired; lower it with --trigger-noise or --trigger-level",
+            wav.display()
+        );
+    }
+    let encoding = if analysis.info().channels.iter().all(|c| c.scale == 1.0) {
+        "as stored"
+    } else {
+        "counts"
+    };
+    let run = write_run_files(analysis, variant, out, Some((wav, encoding)))?;
+    if show_hits {
+        print!("{}", report::hit_lines(hits, fs));
+    }
+    println!(
+        "{}: {} hits, {} accepted{}; modes from the {} in {:.0}-{:.0} Hz, resolution {:.3} Hz",
+        run.variant.label,
+        run.hits_total,
+        run.hits_accepted,
+        match report::rejection_summary(hits) {
+            s if s.is_empty() => String::new(),
+            s => format!(" (rejected: {s})"),
+        },
+        run.setup.basis.label(),
+        run.setup.band_hz.0,
+        run.setup.band_hz.1,
+        run.setup.fft.resolution_hz
+    );
+    print!("{}", report::mode_table(&run.modes));
+    for n in &run.notes {
+        println!("note: {n}");
+    }
+    println!("wrote {}", out.display());
+    if run.hits_accepted == 0 {
+        crate::fail!(
+            "none of the {} hits passed the checks ({}); see the reasons with --hits",
+            hits.len(),
+            report::rejection_summary(hits)
+        );
+    }
+    Ok(())
+}
+
+fn stem(p: &Path) -> String {
+    p.file_stem()
+        .map_or("run".into(), |s| s.to_string_lossy().into_owned())
+}
+
+/// `bench.wav` -> `bench.modes.json`; a run file is never overwritten by default:
+/// `bench.modes.json` -> `bench.again.json`.
+fn default_out(input: &Path) -> PathBuf {
+    let s = stem(input);
+    match s.strip_suffix(".modes") {
+        Some(base) => input.with_file_name(format!("{base}.again.json")),
+        None if input
+            .extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("json")) =>
+        {
+            input.with_file_name(format!("{s}.again.json"))
+        }
+        None => input.with_file_name(format!("{s}.modes.json")),
+    }
+}

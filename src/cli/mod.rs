@@ -1,0 +1,48 @@
+//! Command-line front end: argument definitions and dispatch to the library.
+
+pub mod analyze;
+pub mod args;
+pub mod compare;
+pub mod report;
+pub mod simulate;
+
+use crate::error::Result;
+use clap::{Parser, Subcommand};
+
+const SAFETY: &str = "Safety: take the propellers off, disconnect the flight battery and secure the \
+craft before tapping it; tap gently. This tool's findings do not replace the manufacturer's \
+guidance, local rules or a careful first hover.";
+
+/// Bench tap-testing for multirotor frames and parts: tap a part, get its averaged
+/// frequency response, coherence, modes and damping, and compare variants.
+///
+/// Run with no command to open the terminal app on the simulated bench.
+#[derive(Debug, Parser)]
+#[command(name = "tapmodes", version, after_help = SAFETY)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Option<Command>,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Make a recording on the simulated bench (WAV plus the true modes as JSON).
+    Simulate(simulate::SimulateArgs),
+    /// Find hits and modes in a WAV (or re-analyse a run file) and write the mode list.
+    Analyze(Box<analyze::AnalyzeArgs>),
+    /// Compare the mode lists of variants against the first one.
+    Compare(compare::CompareArgs),
+}
+
+pub fn run(cli: Cli) -> Result<()> {
+    match cli.command {
+        Some(Command::Simulate(a)) => simulate::run(&a),
+        Some(Command::Analyze(a)) => analyze::run(&a),
+        Some(Command::Compare(a)) => compare::run(&a),
+        None => {
+            crate::fail!(
+                "the terminal app is not built yet; try `tapmodes simulate` then `tapmodes analyze`"
+            )
+        }
+    }
+}

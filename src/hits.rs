@@ -1,0 +1,475 @@
+//! Hit detection on a stream of blocks: trigger, pre-trigger ring, record capture, per-hit checks.
+//!
+//! The detector works sample by sample with state that never depends on block boundaries,
+//! so a file read in one piece and a live stream in small blocks give identical hits.
+
+use crate::signal::{Block, Roles, StreamInfo};
+use serde::{Deserialize, Serialize};
+
+/// How the trigger level is set.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case", tag = "kind", content = "value")]
+pub enum TriggerLevel {
+    /// Deviation from the baseline, in the trigger channel's unit.
+    Absolute(f64),
+    /// A multiple of the measured noise floor (RMS) of the trigger channel.
+    NoiseMultiple(f64),
+}
+
+/// Trigger and record settings. Times in seconds.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TriggerConfig {
+    /// Channel the trigger watches (force if present, else response).
+    pub channel: usize,
+    pub level: TriggerLevel,
+    pub pretrigger_s: f64,
+    pub record_s: f64,
+    /// Dead time after each record before the next trigger may fire.
+    pub holdoff_s: f64,
+}
+
+/// Thresholds of the per-hit checks.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CheckConfig {
+    /// A sample at or above this fraction of full scale counts as clipping.
+    pub clip_fraction: f64,
+    /// A second force pulse above this fraction of the first is a double hit.
+    pub double_fraction: f64,
+    /// Largest response level (RMS of the last 5 % of the record, noise removed, over the
+    /// peak) still counted as decayed.
+    pub residual_limit: f64,
+    /// Smallest response peak over the noise floor, in dB.
+    pub min_snr_db: f64,
+}
+
+impl Default for CheckConfig {
+    fn default() -> Self {
+        CheckConfig {
+            clip_fraction: 0.99,
+            double_fraction: 0.1,
+            residual_limit: 0.1,
+            min_snr_db: 20.0,
+        }
+    }
+}
+
+/// The outcome of the checks on one hit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Verdict {
+    Accepted,
+    DoubleHit,
+    Overload,
+    NotDecayed,
+    TooWeak,
+    /// Rejected by the operator.
+    Dropped,
+}
+
+impl Verdict {
+    pub fn is_accepted(self) -> bool {
+        self == Verdict::Accepted
+    }
+    pub fn label(self) -> &'static str {
+        match self {
+            Verdict::Accepted => "accepted",
+            Verdict::DoubleHit => "double hit",
+            Verdict::Overload => "overload",
+            Verdict::NotDecayed => "not decayed",
+            Verdict::TooWeak => "too weak",
+            Verdict::Dropped => "dropped",
+        }
+    }
+}
+
+/// One captured hit: the record (baseline removed, in channel units) and its verdict.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Hit {
+    /// 1-based count of hits in this stream.
+    pub number: usize,
+    /// Stream sample index of the record's first sample.
+    pub start: u64,
+    /// Stream sample index where the trigger fired.
+    pub trigger: u64,
+    /// One vector per stream channel, `record_len` samples each.
+    pub record: Vec<Vec<f64>>,
+    pub verdict: Verdict,
+    pub reason: String,
+    pub peak_force: Option<f64>,
+    pub peak_response: f64,
+    /// Response level at the end of the record relative to its peak (fraction).
+    pub residual: f64,
+    /// Response noise floor (RMS, channel unit) measured before the hit.
+    pub noise_rms: f64,
+}
+
+const CHUNK: usize = 256;
+const CHUNK_HISTORY: usize = 32;
+
+/// Running idle statistics of one channel: median of per-chunk mean and RMS.
+#[derive(Debug, Clone, Default)]
+struct Floor {
+    sum: f64,
+    sum_sq: f64,
+    count: usize,
+    means: std::collections::VecDeque<f64>,
+    rmss: std::collections::VecDeque<f64>,
+}
+
+impl Floor {
+    fn add(&mut self, x: f64) {
+        self.sum += x;
+        self.sum_sq += x * x;
+        self.count += 1;
+        if self.count == CHUNK {
+            let mean = self.sum / CHUNK as f64;
+            let var = (self.sum_sq / CHUNK as f64 - mean * mean).max(0.0);
+            if self.means.len() == CHUNK_HISTORY {
+                self.means.pop_front();
+                self.rmss.pop_front();
+            }
+            self.means.push_back(mean);
+            self.rmss.push_back(var.sqrt());
+            self.discard_chunk();
+        }
+    }
+    fn discard_chunk(&mut self) {
+        self.sum = 0.0;
+        self.sum_sq = 0.0;
+        self.count = 0;
+    }
+    fn ready(&self) -> bool {
+        !self.means.is_empty()
+    }
+    fn baseline(&self) -> f64 {
+        median(self.means.iter().copied())
+    }
+    fn noise(&self) -> f64 {
+        median(self.rmss.iter().copied())
+    }
+}
+
+fn median(values: impl Iterator<Item = f64>) -> f64 {
+    let mut v: Vec<f64> = values.collect();
+    if v.is_empty() {
+        return 0.0;
+    }
+    v.sort_by(f64::total_cmp);
+    let m = v.len() / 2;
+    if v.len() % 2 == 1 {
+        v[m]
+    } else {
+        0.5 * (v[m - 1] + v[m])
+    }
+}
+
+enum Phase {
+    Idle,
+    Recording { trigger: u64, start: u64 },
+    HoldOff { until: u64 },
+}
+
+/// Turns a stream of blocks into hits.
+pub struct HitDetector {
+    trigger: TriggerConfig,
+    checks: CheckConfig,
+    roles: Roles,
+    full_scale: Vec<Option<f64>>,
+    pre_len: usize,
+    record_len: usize,
+    holdoff_len: u64,
+    /// Pre-trigger ring, one per channel (raw values).
+    ring: Vec<std::collections::VecDeque<f64>>,
+    floors: Vec<Floor>,
+    /// Baselines and noise frozen at the trigger.
+    frozen: Vec<(f64, f64)>,
+    record: Vec<Vec<f64>>,
+    phase: Phase,
+    seen: u64,
+    hits: usize,
+}
+
+impl HitDetector {
+    pub fn new(
+        info: &StreamInfo,
+        roles: Roles,
+        trigger: TriggerConfig,
+        checks: CheckConfig,
+    ) -> Self {
+        let fs = info.sample_rate;
+        let n = info.channels.len();
+        let pre_len = (trigger.pretrigger_s * fs).round() as usize;
+        let record_len = ((trigger.record_s * fs).round() as usize).max(pre_len + 16);
+        HitDetector {
+            full_scale: info.channels.iter().map(|c| c.full_scale).collect(),
+            pre_len,
+            record_len,
+            holdoff_len: (trigger.holdoff_s * fs).round() as u64,
+            ring: vec![std::collections::VecDeque::with_capacity(pre_len + 1); n],
+            floors: vec![Floor::default(); n],
+            frozen: vec![(0.0, 0.0); n],
+            record: vec![Vec::with_capacity(record_len); n],
+            phase: Phase::Idle,
+            seen: 0,
+            hits: 0,
+            trigger,
+            checks,
+            roles,
+        }
+    }
+
+    pub fn record_len(&self) -> usize {
+        self.record_len
+    }
+
+    pub fn pretrigger_len(&self) -> usize {
+        self.pre_len
+    }
+
+    /// Current trigger threshold (deviation from baseline) in the trigger channel's unit,
+    /// or `None` while the noise floor is still being measured.
+    pub fn threshold(&self) -> Option<f64> {
+        let f = &self.floors[self.trigger.channel];
+        if !f.ready() {
+            return None;
+        }
+        Some(match self.trigger.level {
+            TriggerLevel::Absolute(v) => v,
+            TriggerLevel::NoiseMultiple(k) => k * f.noise(),
+        })
+    }
+
+    /// Baseline (idle mean) of a channel, if measured.
+    pub fn baseline(&self, channel: usize) -> Option<f64> {
+        self.floors
+            .get(channel)
+            .filter(|f| f.ready())
+            .map(Floor::baseline)
+    }
+
+    pub fn set_level(&mut self, level: TriggerLevel) {
+        self.trigger.level = level;
+    }
+
+    pub fn trigger_config(&self) -> &TriggerConfig {
+        &self.trigger
+    }
+
+    /// Samples consumed so far.
+    pub fn position(&self) -> u64 {
+        self.seen
+    }
+
+    pub fn push(&mut self, block: &Block, out: &mut Vec<Hit>) {
+        let n_ch = self.ring.len();
+        for k in 0..block.len() {
+            let idx = self.seen;
+            self.seen += 1;
+            match self.phase {
+                Phase::Idle => {
+                    let armed = self.floors[self.trigger.channel].ready()
+                        && self.ring[0].len() >= self.pre_len;
+                    let x = block.channels[self.trigger.channel][k];
+                    let fired = armed
+                        && self.threshold().is_some_and(|th| {
+                            (x - self.floors[self.trigger.channel].baseline()).abs() >= th
+                        });
+                    if fired {
+                        for c in 0..n_ch {
+                            let f = &mut self.floors[c];
+                            f.discard_chunk();
+                            self.frozen[c] = (f.baseline(), f.noise());
+                            self.record[c].clear();
+                            self.record[c].extend(self.ring[c].drain(..));
+                            self.record[c].push(block.channels[c][k]);
+                        }
+                        let start = idx - self.pre_len as u64;
+                        self.phase = Phase::Recording {
+                            trigger: idx,
+                            start,
+                        };
+                        self.finish_if_full(out);
+                    } else {
+                        for c in 0..n_ch {
+                            let x = block.channels[c][k];
+                            self.floors[c].add(x);
+                            let ring = &mut self.ring[c];
+                            if self.pre_len > 0 {
+                                if ring.len() == self.pre_len {
+                                    ring.pop_front();
+                                }
+                                ring.push_back(x);
+                            }
+                        }
+                    }
+                }
+                Phase::Recording { .. } => {
+                    for c in 0..n_ch {
+                        self.record[c].push(block.channels[c][k]);
+                    }
+                    self.finish_if_full(out);
+                }
+                Phase::HoldOff { until } => {
+                    if idx + 1 >= until {
+                        self.phase = Phase::Idle;
+                    }
+                }
+            }
+        }
+    }
+
+    fn finish_if_full(&mut self, out: &mut Vec<Hit>) {
+        let Phase::Recording { trigger, start } = self.phase else {
+            return;
+        };
+        if self.record[0].len() < self.record_len {
+            return;
+        }
+        let raw: Vec<Vec<f64>> = self.record.iter_mut().map(std::mem::take).collect();
+        self.hits += 1;
+        let hit = self.judge(raw, start, trigger);
+        out.push(hit);
+        for r in &mut self.record {
+            r.reserve(self.record_len);
+        }
+        self.phase = if self.holdoff_len > 0 {
+            Phase::HoldOff {
+                until: self.seen + self.holdoff_len,
+            }
+        } else {
+            Phase::Idle
+        };
+    }
+
+    fn judge(&self, raw: Vec<Vec<f64>>, start: u64, trigger: u64) -> Hit {
+        let c = &self.checks;
+        let mut verdict = Verdict::Accepted;
+        let mut reason = String::from("all checks passed");
+        // Overload on any channel, judged on raw values against full scale.
+        for (ch, x) in raw.iter().enumerate() {
+            let Some(fs) = self.full_scale[ch] else {
+                continue;
+            };
+            let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+            if peak >= c.clip_fraction * fs {
+                verdict = Verdict::Overload;
+                reason = format!(
+                    "channel {ch} reached {:.0} % of full scale: clipped, tap more gently",
+                    100.0 * peak / fs
+                );
+                break;
+            }
+        }
+        let record: Vec<Vec<f64>> = raw
+            .into_iter()
+            .zip(&self.frozen)
+            .map(|(x, &(base, _))| x.into_iter().map(|v| v - base).collect())
+            .collect();
+        let resp = &record[self.roles.response];
+        let noise = self.frozen[self.roles.response].1;
+        let peak_response = resp.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let tail_len = (resp.len() / 20).max(1);
+        let tail = &resp[resp.len() - tail_len..];
+        let tail_ms = tail.iter().map(|v| v * v).sum::<f64>() / tail_len as f64;
+        let residual = if peak_response > 0.0 {
+            (tail_ms - noise * noise).max(0.0).sqrt() / peak_response
+        } else {
+            0.0
+        };
+        let peak_force = self
+            .roles
+            .force
+            .map(|f| record[f].iter().fold(0.0f64, |m, v| m.max(v.abs())));
+        if verdict == Verdict::Accepted {
+            let second = match self.roles.force {
+                Some(f) => second_pulse(&record[f], c.double_fraction, 5.0 * self.frozen[f].1),
+                None => second_onset(resp, self.pre_len),
+            };
+            if let Some(found) = second {
+                verdict = Verdict::DoubleHit;
+                reason = found;
+            }
+        }
+        if verdict == Verdict::Accepted {
+            let snr_db = 20.0 * (peak_response / noise.max(f64::MIN_POSITIVE)).log10();
+            if snr_db < c.min_snr_db {
+                verdict = Verdict::TooWeak;
+                reason = format!(
+                    "response peak only {snr_db:.0} dB above the noise floor (needs {:.0} dB): tap harder",
+                    c.min_snr_db
+                );
+            }
+        }
+        if verdict == Verdict::Accepted && residual > c.residual_limit {
+            verdict = Verdict::NotDecayed;
+            reason = format!(
+                "response still at {:.1} % of its peak at the end of the record (limit {:.1} %): lengthen the record",
+                100.0 * residual,
+                100.0 * c.residual_limit
+            );
+        }
+        Hit {
+            number: self.hits,
+            start,
+            trigger,
+            record,
+            verdict,
+            reason,
+            peak_force,
+            peak_response,
+            residual,
+            noise_rms: noise,
+        }
+    }
+}
+
+/// A second force pulse after the first has ended: returns a description if found.
+fn second_pulse(force: &[f64], fraction: f64, noise_limit: f64) -> Option<String> {
+    let (p_idx, peak) =
+        force.iter().enumerate().fold(
+            (0, 0.0f64),
+            |(i, m), (j, v)| if v.abs() > m { (j, v.abs()) } else { (i, m) },
+        );
+    if peak <= 0.0 {
+        return None;
+    }
+    let end_level = 0.05 * peak;
+    let end = p_idx + force[p_idx..].iter().position(|v| v.abs() < end_level)?;
+    let limit = (fraction * peak).max(noise_limit);
+    let (q_off, q) = force[end..]
+        .iter()
+        .enumerate()
+        .fold(
+            (0, 0.0f64),
+            |(i, m), (j, v)| if v.abs() > m { (j, v.abs()) } else { (i, m) },
+        );
+    (q > limit).then(|| {
+        format!(
+            "second impact {} samples after the first at {:.0} % of its force",
+            end + q_off - p_idx,
+            100.0 * q / peak
+        )
+    })
+}
+
+/// Without a force channel: a sharp rise of the response envelope after its peak.
+fn second_onset(resp: &[f64], from: usize) -> Option<String> {
+    let win = 8usize;
+    let env: Vec<f64> = resp[from.min(resp.len())..]
+        .chunks(win)
+        .map(|w| w.iter().fold(0.0f64, |m, v| m.max(v.abs())))
+        .collect();
+    let (p, peak) = env.iter().enumerate().fold(
+        (0, 0.0f64),
+        |(i, m), (j, &v)| if v > m { (j, v) } else { (i, m) },
+    );
+    for k in p + 2..env.len() {
+        if env[k] > 2.5 * env[k - 1] && env[k] > 0.3 * peak {
+            return Some(format!(
+                "the response rose again sharply {} samples after its peak",
+                (k - p) * win
+            ));
+        }
+    }
+    None
+}

@@ -1,0 +1,14 @@
+//! tapmodes: bench tap-testing of frames and parts, from samples to compared mode lists.
+//!
+//! Data flow: `source` -> `hits` -> `spectra` -> `modes` -> `run`, driven by `pipeline`.
+
+pub mod cli; // command-line front end over the library
+pub mod error; // errors as values: one sentence with context
+pub mod hits; // trigger, pre-trigger ring, per-hit verdicts
+pub mod modes; // peak picking, half-power damping, flags
+pub mod pipeline; // the one pipeline every front end drives
+pub mod rng; // seeded random numbers for the simulator
+pub mod run; // run files (WAV, JSON, CSV), atomic writes, comparison
+pub mod signal; // channels, roles, units and sample blocks
+pub mod source; // WAV replay, simulator (later: serial, audio)
+pub mod spectra; // windows, FFT, averaged spectra, H1/H2/coherence

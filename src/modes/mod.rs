@@ -1,0 +1,183 @@
+//! Mode finding: peaks above the noise floor, refined, with half-power damping and flags.
+
+pub mod halfpower;
+pub mod peaks;
+
+use crate::spectra::{Curve, remove_window_damping};
+use serde::{Deserialize, Serialize};
+
+/// Why a mode's numbers deserve caution.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Flag {
+    /// The half-power band spans fewer than `MIN_LINES` spectral lines.
+    FewLines,
+    /// Another peak lies close enough to bias the half-power band.
+    Overlap,
+    /// Coherence at the peak is below `LOW_COHERENCE`.
+    LowCoherence,
+    /// One or both half-power crossings were not found; damping unknown.
+    NoHalfPower,
+    /// The exponential window's added damping exceeds the measured damping.
+    WindowDominated,
+}
+
+impl Flag {
+    pub fn label(self) -> &'static str {
+        match self {
+            Flag::FewLines => "few lines",
+            Flag::Overlap => "overlap",
+            Flag::LowCoherence => "low coherence",
+            Flag::NoHalfPower => "no half-power",
+            Flag::WindowDominated => "window-dominated",
+        }
+    }
+    pub fn short(self) -> &'static str {
+        match self {
+            Flag::FewLines => "L",
+            Flag::Overlap => "O",
+            Flag::LowCoherence => "C",
+            Flag::NoHalfPower => "H",
+            Flag::WindowDominated => "W",
+        }
+    }
+}
+
+/// Half-power bands narrower than this many true spectral lines are flagged (the
+/// frequency-domain estimate becomes resolution-limited): common practice, no source.
+pub const MIN_LINES: f64 = 4.0;
+/// Coherence below this at a peak is flagged: common practice, no source.
+pub const LOW_COHERENCE: f64 = 0.9;
+
+/// The half-power band of a mode.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct HalfPowerBand {
+    pub low_hz: f64,
+    pub high_hz: f64,
+    /// Width in true spectral lines (fs / record length).
+    pub lines: f64,
+}
+
+/// One identified mode, as written in the mode list.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Mode {
+    pub frequency_hz: f64,
+    /// Viscous damping ratio, a fraction (0.012 = 1.2 %), with the window's share removed.
+    pub damping_ratio: Option<f64>,
+    /// Quality factor 1 / (2 damping_ratio).
+    pub q: Option<f64>,
+    /// Magnitude at the peak, in the curve's unit.
+    pub magnitude: f64,
+    pub phase_deg: Option<f64>,
+    pub coherence: Option<f64>,
+    /// How far the peak stands above its surroundings, dB.
+    pub prominence_db: f64,
+    pub half_power: Option<HalfPowerBand>,
+    /// Damping ratio the exponential window added (already removed above).
+    pub window_damping: f64,
+    pub method: String,
+    pub flags: Vec<Flag>,
+}
+
+/// Settings of the mode finder.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ModeConfig {
+    /// Search band in Hz.
+    pub band_hz: (f64, f64),
+    /// A peak must rise this far above its surroundings (dB).
+    pub min_prominence_db: f64,
+    /// ... and this far above the estimated noise floor (dB).
+    pub min_above_floor_db: f64,
+    pub max_modes: usize,
+}
+
+impl Default for ModeConfig {
+    fn default() -> Self {
+        ModeConfig {
+            band_hz: (20.0, f64::INFINITY),
+            min_prominence_db: 6.0,
+            min_above_floor_db: 10.0,
+            max_modes: 12,
+        }
+    }
+}
+
+/// Find the modes on a curve. `freqs` in Hz; `resolution_hz` is the true line spacing.
+pub fn find_modes(
+    freqs: &[f64],
+    curve: &Curve,
+    resolution_hz: f64,
+    tau_s: Option<f64>,
+    cfg: &ModeConfig,
+) -> Vec<Mode> {
+    let db: Vec<f64> = curve
+        .magnitude
+        .iter()
+        .map(|m| 20.0 * m.max(1e-300).log10())
+        .collect();
+    let picked = peaks::pick(freqs, &db, cfg);
+    let peak_freqs: Vec<f64> = picked.iter().map(|p| freqs[p.index]).collect();
+    let mut modes: Vec<Mode> = picked
+        .iter()
+        .map(|p| {
+            let refined = halfpower::refine_peak(freqs, &db, p.index);
+            let band = halfpower::half_power(freqs, &db, p.index, refined.level_db);
+            let mut flags = Vec::new();
+            let coherence = curve.coherence.as_ref().map(|c| c[p.index]);
+            if coherence.is_some_and(|c| c < LOW_COHERENCE) {
+                flags.push(Flag::LowCoherence);
+            }
+            let (mut f, mut zeta, mut hp) = (refined.frequency_hz, None, None);
+            let mut window_damping = 0.0;
+            match band {
+                Ok(b) => {
+                    let z_apparent = halfpower::damping_from_band(b.0, b.1, f);
+                    let lines = (b.1 - b.0) / resolution_hz;
+                    if lines < MIN_LINES {
+                        flags.push(Flag::FewLines);
+                    }
+                    let width = b.1 - b.0;
+                    if peak_freqs
+                        .iter()
+                        .any(|&q| q != freqs[p.index] && (q - f).abs() < 2.0 * width)
+                    {
+                        flags.push(Flag::Overlap);
+                    }
+                    let (f_c, z_c) = remove_window_damping(f, z_apparent, tau_s);
+                    window_damping = z_apparent - z_c;
+                    if z_c <= 0.0 {
+                        flags.push(Flag::WindowDominated);
+                    } else {
+                        zeta = Some(z_c);
+                    }
+                    f = f_c;
+                    hp = Some(HalfPowerBand {
+                        low_hz: b.0,
+                        high_hz: b.1,
+                        lines,
+                    });
+                }
+                Err(halfpower::Blocked::Overlap) => {
+                    flags.push(Flag::Overlap);
+                    flags.push(Flag::NoHalfPower);
+                }
+                Err(halfpower::Blocked::Edge) => flags.push(Flag::NoHalfPower),
+            }
+            Mode {
+                frequency_hz: f,
+                damping_ratio: zeta,
+                q: zeta.map(|z| 1.0 / (2.0 * z)),
+                magnitude: 10f64.powf(refined.level_db / 20.0),
+                phase_deg: curve.phase_deg.as_ref().map(|ph| ph[p.index]),
+                coherence,
+                prominence_db: p.prominence_db,
+                half_power: hp,
+                window_damping,
+                method: "half_power".into(),
+                flags,
+            }
+        })
+        .collect();
+    modes.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+    modes
+}

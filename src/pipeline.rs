@@ -1,0 +1,330 @@
+//! The one pipeline both front ends drive: blocks -> hits -> averaged spectra -> modes.
+
+use crate::error::Result;
+use crate::hits::{CheckConfig, Hit, HitDetector, TriggerConfig, TriggerLevel, Verdict};
+use crate::modes::{Mode, ModeConfig, find_modes};
+use crate::signal::{Block, Roles, StreamInfo};
+use crate::spectra::{Basis, Estimator, Spectra, SpectraConfig, SpectralAverager};
+use serde::{Deserialize, Serialize};
+
+/// Trigger settings before the channel is resolved against a stream.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TriggerChoice {
+    /// `None`: the force channel, or the response channel without one.
+    pub channel: Option<usize>,
+    pub level: TriggerLevel,
+    pub pretrigger_s: f64,
+    pub record_s: f64,
+    pub holdoff_s: f64,
+}
+
+impl Default for TriggerChoice {
+    fn default() -> Self {
+        TriggerChoice {
+            channel: None,
+            level: TriggerLevel::NoiseMultiple(10.0),
+            pretrigger_s: 0.01,
+            record_s: 1.0,
+            holdoff_s: 0.2,
+        }
+    }
+}
+
+/// Everything that decides what the analysis computes.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
+pub struct AnalysisConfig {
+    pub trigger: TriggerChoice,
+    pub checks: CheckConfig,
+    pub spectra: SpectraConfig,
+    pub modes: ModeConfig,
+    pub estimator: Estimator,
+    /// `None`: FRF when there is a force channel, else the response spectrum.
+    pub basis: Option<Basis>,
+}
+
+/// What is kept of each hit for the run file and the hit list.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct HitSummary {
+    pub number: usize,
+    pub start_sample: u64,
+    pub trigger_sample: u64,
+    pub verdict: Verdict,
+    pub reason: String,
+    /// True when the operator overrode the automatic verdict.
+    pub by_operator: bool,
+    /// Peak force in the force unit (absent without a force channel).
+    pub peak_force: Option<f64>,
+    pub peak_response: f64,
+    /// Response level at the record end over its peak (fraction).
+    pub residual: f64,
+}
+
+impl HitSummary {
+    fn of(hit: &Hit) -> Self {
+        HitSummary {
+            number: hit.number,
+            start_sample: hit.start,
+            trigger_sample: hit.trigger,
+            verdict: hit.verdict,
+            reason: hit.reason.clone(),
+            by_operator: false,
+            peak_force: hit.peak_force,
+            peak_response: hit.peak_response,
+            residual: hit.residual,
+        }
+    }
+}
+
+/// A running analysis of one stream.
+pub struct Analysis {
+    info: StreamInfo,
+    roles: Roles,
+    cfg: AnalysisConfig,
+    detector: HitDetector,
+    averager: SpectralAverager,
+    hits: Vec<HitSummary>,
+    /// Records kept for re-averaging after an operator decision (only if retained).
+    records: Vec<Option<Vec<Vec<f64>>>>,
+    retain: bool,
+    last: Option<Hit>,
+}
+
+impl Analysis {
+    /// `retain` keeps every record in memory so verdicts can be changed later; streaming
+    /// analysis of long files leaves it off and stays flat in memory.
+    pub fn new(
+        info: &StreamInfo,
+        roles: Roles,
+        mut cfg: AnalysisConfig,
+        retain: bool,
+    ) -> Result<Self> {
+        let fs = info.sample_rate;
+        if !(fs > 0.0 && fs.is_finite()) {
+            crate::fail!("the sample rate {fs} Hz is not usable");
+        }
+        let nyquist = fs / 2.0;
+        let (lo, hi) = cfg.modes.band_hz;
+        // Without a given upper limit, stop at 0.4 fs, below where anti-alias filters roll
+        // off (common practice, no source).
+        let hi = if hi.is_finite() {
+            hi.min(nyquist)
+        } else {
+            0.4 * fs
+        };
+        cfg.modes.band_hz = (lo.max(0.0), hi);
+        if cfg.modes.band_hz.0 >= cfg.modes.band_hz.1 {
+            crate::fail!(
+                "the band {lo}:{hi} Hz is empty for a sample rate of {fs} Hz (Nyquist {nyquist} Hz)"
+            );
+        }
+        let t = &cfg.trigger;
+        if !(t.record_s > 0.0 && t.pretrigger_s >= 0.0 && t.pretrigger_s < t.record_s) {
+            crate::fail!("the record must be longer than the pre-trigger and both positive");
+        }
+        let trigger_channel = t.channel.unwrap_or(roles.force.unwrap_or(roles.response));
+        if trigger_channel >= info.channels.len() {
+            crate::fail!("the trigger channel {trigger_channel} does not exist");
+        }
+        if cfg.basis == Some(Basis::Transmissibility) && roles.base.is_none() {
+            crate::fail!("transmissibility needs a base channel (give --base-channel)");
+        }
+        if matches!(cfg.basis, Some(Basis::Frf(_))) && roles.force.is_none() {
+            crate::fail!("an FRF needs a force channel");
+        }
+        let trigger = TriggerConfig {
+            channel: trigger_channel,
+            level: t.level,
+            pretrigger_s: t.pretrigger_s,
+            record_s: t.record_s,
+            holdoff_s: t.holdoff_s,
+        };
+        let detector = HitDetector::new(info, roles, trigger, cfg.checks.clone());
+        let units = (
+            roles
+                .force
+                .map_or("-".to_string(), |f| info.channels[f].unit.clone()),
+            info.channels[roles.response].unit.clone(),
+        );
+        let averager = SpectralAverager::new(
+            roles,
+            detector.record_len(),
+            detector.pretrigger_len(),
+            fs,
+            &cfg.spectra,
+            units,
+        );
+        Ok(Analysis {
+            info: info.clone(),
+            roles,
+            cfg,
+            detector,
+            averager,
+            hits: Vec::new(),
+            records: Vec::new(),
+            retain,
+            last: None,
+        })
+    }
+
+    pub fn info(&self) -> &StreamInfo {
+        &self.info
+    }
+    pub fn roles(&self) -> Roles {
+        self.roles
+    }
+    pub fn config(&self) -> &AnalysisConfig {
+        &self.cfg
+    }
+    pub fn detector(&self) -> &HitDetector {
+        &self.detector
+    }
+    pub fn hits(&self) -> &[HitSummary] {
+        &self.hits
+    }
+    /// The most recent hit with its record.
+    pub fn last_hit(&self) -> Option<&Hit> {
+        self.last.as_ref()
+    }
+    pub fn accepted(&self) -> usize {
+        self.averager.count()
+    }
+
+    /// Feed one block; returns how many new hits it completed.
+    pub fn push(&mut self, block: &Block) -> usize {
+        let mut found = Vec::new();
+        self.detector.push(block, &mut found);
+        let n = found.len();
+        for hit in found {
+            if hit.verdict.is_accepted() {
+                self.averager.add(&hit.record);
+            }
+            self.hits.push(HitSummary::of(&hit));
+            self.records.push(self.retain.then(|| hit.record.clone()));
+            self.last = Some(hit);
+        }
+        n
+    }
+
+    /// Change the trigger level from now on.
+    pub fn set_trigger_level(&mut self, level: TriggerLevel) {
+        self.cfg.trigger.level = level;
+        self.detector.set_level(level);
+    }
+
+    /// Operator decision on hit `index` (0-based): accept or drop, then re-average.
+    /// Needs retained records; returns false if the hit's record is not available.
+    pub fn decide(&mut self, index: usize, accept: bool) -> bool {
+        if index >= self.hits.len() || self.records[index].is_none() {
+            return false;
+        }
+        let h = &mut self.hits[index];
+        let was = h.verdict;
+        if accept == was.is_accepted() {
+            return true;
+        }
+        if accept {
+            h.verdict = Verdict::Accepted;
+            h.reason = format!("accepted by the operator (was: {})", was.label());
+        } else {
+            h.verdict = Verdict::Dropped;
+            h.reason = format!("dropped by the operator (was: {})", was.label());
+        }
+        h.by_operator = true;
+        self.reaverage();
+        true
+    }
+
+    /// Apply verdicts decided elsewhere (a run file being re-analysed).
+    pub fn apply_verdicts(&mut self, saved: &[HitSummary]) {
+        for s in saved.iter().filter(|s| s.by_operator) {
+            if let Some(i) = self
+                .hits
+                .iter()
+                .position(|h| h.trigger_sample == s.trigger_sample)
+            {
+                self.hits[i].verdict = s.verdict;
+                self.hits[i].reason = s.reason.clone();
+                self.hits[i].by_operator = true;
+            }
+        }
+        self.reaverage();
+    }
+
+    fn reaverage(&mut self) {
+        let d = &self.detector;
+        let mut avg = SpectralAverager::new(
+            self.roles,
+            d.record_len(),
+            d.pretrigger_len(),
+            self.info.sample_rate,
+            &self.cfg.spectra,
+            self.averager.spectra().units(),
+        );
+        for (h, r) in self.hits.iter().zip(&self.records) {
+            if let (true, Some(r)) = (h.verdict.is_accepted(), r) {
+                avg.add(r);
+            }
+        }
+        self.averager = avg;
+    }
+
+    pub fn set_estimator(&mut self, e: Estimator) {
+        self.cfg.estimator = e;
+        if let Some(Basis::Frf(_)) = self.cfg.basis {
+            self.cfg.basis = Some(Basis::Frf(e));
+        }
+    }
+
+    pub fn set_basis(&mut self, b: Option<Basis>) {
+        self.cfg.basis = b;
+    }
+
+    pub fn spectra(&self) -> Spectra {
+        self.averager.spectra()
+    }
+
+    pub fn windows(&self) -> &crate::spectra::Windows {
+        self.averager.windows()
+    }
+
+    /// The basis modes are read from.
+    pub fn basis(&self) -> Basis {
+        self.cfg.basis.unwrap_or(if self.roles.force.is_some() {
+            Basis::Frf(self.cfg.estimator)
+        } else {
+            Basis::Autospectrum
+        })
+    }
+
+    /// Modes on the current basis (empty before the first accepted hit).
+    pub fn modes(&self, spectra: &Spectra) -> Vec<Mode> {
+        if spectra.hits == 0 {
+            return Vec::new();
+        }
+        match spectra.curve(self.basis()) {
+            Some(curve) => find_modes(
+                &spectra.freqs,
+                &curve,
+                spectra.resolution_hz,
+                spectra.tau_s,
+                &self.cfg.modes,
+            ),
+            None => Vec::new(),
+        }
+    }
+}
+
+/// Drain a source through a fresh analysis (the offline path; live paths push blocks
+/// themselves as they arrive).
+pub fn analyse_source(
+    source: &mut dyn crate::source::Source,
+    roles: Roles,
+    cfg: AnalysisConfig,
+    retain: bool,
+) -> Result<Analysis> {
+    let mut analysis = Analysis::new(&source.info().clone(), roles, cfg, retain)?;
+    while let Some(block) = source.next_block()? {
+        analysis.push(&block);
+    }
+    Ok(analysis)
+}

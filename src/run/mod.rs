@@ -1,0 +1,330 @@
+//! Run files: the recording (WAV), the mode list (JSON) and the FRF table (CSV) of a variant.
+
+pub mod atomic;
+pub mod compare;
+pub mod recording;
+
+use crate::error::{Context, Error, Result};
+use crate::hits::{CheckConfig, TriggerConfig};
+use crate::modes::{Mode, ModeConfig};
+use crate::pipeline::{Analysis, HitSummary};
+use crate::signal::{ChannelInfo, Roles};
+use crate::spectra::{Basis, Curve, Estimator, Spectra, WindowConfig};
+use serde::{Deserialize, Serialize};
+use std::path::{Path, PathBuf};
+
+/// Version of the mode-list layout; bump on incompatible change (see schema/run.schema.json).
+pub const SCHEMA_VERSION: u32 = 1;
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Variant {
+    pub label: String,
+    pub note: String,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FftSetup {
+    pub record_samples: usize,
+    pub fft_len: usize,
+    /// True resolution fs / record length.
+    pub resolution_hz: f64,
+    /// Line spacing after zero padding.
+    pub line_spacing_hz: f64,
+    pub zero_pad: usize,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Setup {
+    pub source: String,
+    pub sample_rate_hz: f64,
+    pub channels: Vec<ChannelInfo>,
+    pub roles: Roles,
+    pub trigger: TriggerConfig,
+    pub checks: CheckConfig,
+    pub windows: WindowConfig,
+    /// Time constant of the exponential window in s (absent when off).
+    pub exponential_tau_s: Option<f64>,
+    pub fft: FftSetup,
+    pub estimator: Estimator,
+    pub basis: Basis,
+    pub band_hz: (f64, f64),
+    pub mode_search: ModeConfig,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RecordingRef {
+    /// Path of the WAV relative to this JSON file.
+    pub wav: String,
+    pub frames: u64,
+    /// "float32 in channel units" or "int16 counts" etc.
+    pub encoding: String,
+}
+
+/// The mode list of one variant, with everything needed to reproduce it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RunFile {
+    pub schema_version: u32,
+    pub tool: String,
+    pub tool_version: String,
+    /// UTC time of writing, RFC 3339.
+    pub created_utc: String,
+    pub variant: Variant,
+    pub setup: Setup,
+    pub recording: Option<RecordingRef>,
+    pub hits_total: usize,
+    pub hits_accepted: usize,
+    pub hits: Vec<HitSummary>,
+    pub modes: Vec<Mode>,
+    /// Path of the FRF CSV relative to this JSON file.
+    pub frf_csv: Option<String>,
+    /// Things the reader of these numbers should know.
+    pub notes: Vec<String>,
+}
+
+impl RunFile {
+    /// Describe the current state of an analysis.
+    pub fn from_analysis(
+        a: &Analysis,
+        spectra: &Spectra,
+        modes: &[Mode],
+        variant: Variant,
+    ) -> Self {
+        let info = a.info();
+        let cfg = a.config();
+        let d = a.detector();
+        let fft_len = (spectra.freqs.len() - 1) * 2;
+        let mut notes = Vec::new();
+        if modes
+            .iter()
+            .any(|m| m.flags.contains(&crate::modes::Flag::FewLines))
+        {
+            notes.push(format!(
+                "some half-power bands span fewer than {} spectral lines of {:.3} Hz: their damping is resolution-limited; lengthen the record",
+                crate::modes::MIN_LINES,
+                spectra.resolution_hz
+            ));
+        }
+        if let Some(tau) = spectra.tau_s {
+            notes.push(format!(
+                "an exponential window (tau {:.4} s) added damping; the damping ratios have it removed",
+                tau
+            ));
+        }
+        RunFile {
+            schema_version: SCHEMA_VERSION,
+            tool: "tapmodes".into(),
+            tool_version: env!("CARGO_PKG_VERSION").into(),
+            created_utc: now_rfc3339(),
+            variant,
+            setup: Setup {
+                source: info.source.clone(),
+                sample_rate_hz: info.sample_rate,
+                channels: info.channels.clone(),
+                roles: a.roles(),
+                trigger: d.trigger_config().clone(),
+                checks: cfg.checks.clone(),
+                windows: cfg.spectra.windows.clone(),
+                exponential_tau_s: spectra.tau_s,
+                fft: FftSetup {
+                    record_samples: d.record_len(),
+                    fft_len,
+                    resolution_hz: spectra.resolution_hz,
+                    line_spacing_hz: spectra.freqs.get(1).copied().unwrap_or(0.0),
+                    zero_pad: cfg.spectra.pad,
+                },
+                estimator: cfg.estimator,
+                basis: a.basis(),
+                band_hz: cfg.modes.band_hz,
+                mode_search: cfg.modes.clone(),
+            },
+            recording: None,
+            hits_total: a.hits().len(),
+            hits_accepted: a.accepted(),
+            hits: a.hits().to_vec(),
+            modes: modes.to_vec(),
+            frf_csv: None,
+            notes,
+        }
+    }
+
+    pub fn load(path: &Path) -> Result<Self> {
+        let shown = path.display();
+        let text =
+            std::fs::read_to_string(path).with_context(|| format!("cannot read '{shown}'"))?;
+        let run: RunFile = serde_json::from_str(&text)
+            .map_err(|e| Error::new(format!("'{shown}' is not a tapmodes run file: {e}")))?;
+        if run.schema_version > SCHEMA_VERSION {
+            crate::fail!(
+                "'{shown}' has schema version {} but this tool reads up to {SCHEMA_VERSION}",
+                run.schema_version
+            );
+        }
+        Ok(run)
+    }
+
+    pub fn save(&self, path: &Path) -> Result<()> {
+        let mut text = serde_json::to_string_pretty(self)
+            .map_err(|e| Error::new(format!("cannot encode the run file: {e}")))?;
+        text.push('\n');
+        atomic::write_atomic(path, text.as_bytes())
+    }
+
+    /// Absolute-or-cwd-relative path of the recording, resolved against the JSON's folder.
+    pub fn wav_path(&self, json_path: &Path) -> Option<PathBuf> {
+        let r = self.recording.as_ref()?;
+        let dir = json_path.parent().unwrap_or(Path::new(""));
+        Some(dir.join(&r.wav))
+    }
+}
+
+/// Path of `target` relative to the folder of `json` (falls back to `target` as given).
+pub fn relative_to(json: &Path, target: &Path) -> String {
+    let abs = |p: &Path| std::path::absolute(p).unwrap_or_else(|_| p.to_path_buf());
+    let dir = abs(json.parent().unwrap_or(Path::new(".")));
+    let dir = if dir.as_os_str().is_empty() {
+        abs(Path::new("."))
+    } else {
+        dir
+    };
+    let t = abs(target);
+    let dc: Vec<_> = dir.components().collect();
+    let tc: Vec<_> = t.components().collect();
+    let common = dc.iter().zip(&tc).take_while(|(a, b)| a == b).count();
+    if common == 0 {
+        return target.to_string_lossy().into_owned();
+    }
+    let mut rel = PathBuf::new();
+    for _ in common..dc.len() {
+        rel.push("..");
+    }
+    for c in &tc[common..] {
+        rel.push(c.as_os_str());
+    }
+    rel.to_string_lossy().replace('\\', "/")
+}
+
+/// Write the FRF (or the curve modes were read from) as CSV: one row per spectral line.
+/// Columns: frequency (Hz), magnitude (curve unit), magnitude in dB re 1 unit, phase
+/// (degrees, where defined), coherence (where defined), hit-to-hit spread (dB, response
+/// spectrum only).
+pub fn write_curve_csv(path: &Path, freqs: &[f64], curve: &Curve, band: (f64, f64)) -> Result<()> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let unit = &curve.unit;
+    let header = [
+        "frequency_hz".to_string(),
+        format!("magnitude_{}", unit.replace(' ', "_")),
+        "magnitude_db".into(),
+        "phase_deg".into(),
+        "coherence".into(),
+        "spread_db".into(),
+    ];
+    let enc = |e: csv::Error| Error::new(format!("cannot encode '{}': {e}", path.display()));
+    w.write_record(&header).map_err(enc)?;
+    let opt = |v: Option<&Vec<f64>>, k: usize| v.map_or(String::new(), |v| format!("{:.6}", v[k]));
+    for (k, &f) in freqs.iter().enumerate() {
+        if f < band.0 || f > band.1 {
+            continue;
+        }
+        let m = curve.magnitude[k];
+        w.write_record([
+            format!("{f:.4}"),
+            format!("{m:.6e}"),
+            format!("{:.3}", 20.0 * m.max(1e-300).log10()),
+            opt(curve.phase_deg.as_ref(), k),
+            opt(curve.coherence.as_ref(), k),
+            opt(curve.spread_db.as_ref(), k),
+        ])
+        .map_err(enc)?;
+    }
+    let bytes = w
+        .into_inner()
+        .map_err(|e| Error::new(format!("cannot encode '{}': {e}", path.display())))?;
+    atomic::write_atomic(path, &bytes)
+}
+
+/// Current UTC time as RFC 3339, from the system clock.
+pub fn now_rfc3339() -> String {
+    let secs = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map_or(0, |d| d.as_secs());
+    format_utc(secs)
+}
+
+/// Seconds since 1970 as `YYYY-MM-DDThh:mm:ssZ` (civil-from-days algorithm of
+/// H. Hinnant, "chrono-Compatible Low-Level Date Algorithms").
+pub fn format_utc(secs: u64) -> String {
+    let days = (secs / 86_400) as i64;
+    let rem = secs % 86_400;
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let y = yoe + era * 400;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = if m <= 2 { y + 1 } else { y };
+    format!(
+        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
+        rem / 3600,
+        rem % 3600 / 60,
+        rem % 60
+    )
+}
+
+/// Write the mode list (JSON) and the curve (CSV, same stem) for an analysis. The JSON
+/// names its recording and CSV by paths relative to itself.
+pub fn write_run_files(
+    analysis: &Analysis,
+    variant: Variant,
+    json_path: &Path,
+    recording: Option<(&Path, &str)>,
+) -> Result<RunFile> {
+    let spectra = analysis.spectra();
+    let modes = analysis.modes(&spectra);
+    let mut run = RunFile::from_analysis(analysis, &spectra, &modes, variant);
+    if let Some((wav, encoding)) = recording {
+        run.recording = Some(RecordingRef {
+            wav: relative_to(json_path, wav),
+            frames: analysis.detector().position(),
+            encoding: encoding.to_string(),
+        });
+    }
+    if let Some(curve) = (spectra.hits > 0)
+        .then(|| spectra.curve(analysis.basis()))
+        .flatten()
+    {
+        let csv_path = json_path.with_extension("csv");
+        write_curve_csv(&csv_path, &spectra.freqs, &curve, run.setup.band_hz)?;
+        run.frf_csv = Some(relative_to(json_path, &csv_path));
+    }
+    run.save(json_path)?;
+    Ok(run)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn dates() {
+        // 2000-03-01 is day 11017 since 1970-01-01 (leap-year boundary; from memory,
+        // cross-checked with `date -u -d @951868800`).
+        assert_eq!(format_utc(951_868_800), "2000-03-01T00:00:00Z");
+        assert_eq!(format_utc(0), "1970-01-01T00:00:00Z");
+        assert_eq!(format_utc(1_798_761_599), "2026-12-31T23:59:59Z");
+    }
+
+    #[test]
+    fn relative_paths() {
+        assert_eq!(
+            relative_to(Path::new("out/a.json"), Path::new("out/a.wav")),
+            "a.wav"
+        );
+        assert_eq!(
+            relative_to(Path::new("out/sub/a.json"), Path::new("rec/a.wav")),
+            "../../rec/a.wav"
+        );
+    }
+}

@@ -1,0 +1,187 @@
+//! WAV replay: streams any PCM WAV (8/16/24/32-bit integer or 32-bit float) as blocks.
+//!
+//! Integer samples arrive as raw counts and float samples as stored, each times the
+//! channel's scale (1.0 unless the caller calibrates). Memory stays flat: one block at a time.
+
+use crate::error::{Error, Result};
+use crate::signal::{Block, ChannelInfo, Role, StreamInfo};
+use crate::source::Source;
+use std::fs::File;
+use std::io::BufReader;
+use std::path::{Path, PathBuf};
+
+/// Frames per block read from the file.
+pub const WAV_BLOCK: usize = 8192;
+
+pub struct WavSource {
+    path: PathBuf,
+    reader: hound::WavReader<BufReader<File>>,
+    info: StreamInfo,
+    float: bool,
+    frames_total: u64,
+    next: u64,
+    block: usize,
+    /// Optional real-time pacing: the wall-clock start and the rate to keep.
+    pace: Option<std::time::Instant>,
+}
+
+impl WavSource {
+    pub fn open(path: &Path) -> Result<Self> {
+        let shown = path.display();
+        let reader = hound::WavReader::open(path).map_err(|e| describe(e, path))?;
+        let spec = reader.spec();
+        if spec.channels == 0 {
+            crate::fail!("'{shown}' has zero channels");
+        }
+        let float = spec.sample_format == hound::SampleFormat::Float;
+        if float && spec.bits_per_sample != 32 {
+            crate::fail!(
+                "'{shown}' uses {}-bit float samples; only 32-bit float is supported",
+                spec.bits_per_sample
+            );
+        }
+        let full_scale = if float {
+            1.0
+        } else {
+            (1u64 << (spec.bits_per_sample - 1)) as f64
+        };
+        let channels = (0..spec.channels)
+            .map(|i| ChannelInfo {
+                name: format!("ch{i}"),
+                role: Role::Unused,
+                unit: "counts".into(),
+                scale: 1.0,
+                full_scale: Some(full_scale),
+            })
+            .collect();
+        let frames_total = reader.duration() as u64;
+        Ok(WavSource {
+            info: StreamInfo {
+                source: format!("wav {}", path.display()),
+                sample_rate: spec.sample_rate as f64,
+                channels,
+            },
+            path: path.to_path_buf(),
+            reader,
+            float,
+            frames_total,
+            next: 0,
+            block: WAV_BLOCK,
+            pace: None,
+        })
+    }
+
+    /// Replay no faster than real time (for live-like use of a recording).
+    pub fn real_time(mut self) -> Self {
+        self.pace = Some(std::time::Instant::now());
+        self.block = (self.info.sample_rate / 50.0).ceil() as usize;
+        self
+    }
+
+    pub fn with_block_len(mut self, n: usize) -> Self {
+        self.block = n.max(1);
+        self
+    }
+
+    pub fn frames(&self) -> u64 {
+        self.frames_total
+    }
+
+    /// Set a channel's unit and scale (unit per count); full scale follows.
+    pub fn calibrate(&mut self, channel: usize, unit: &str, scale: f64) {
+        if let Some(c) = self.info.channels.get_mut(channel) {
+            c.unit = unit.to_string();
+            c.full_scale = c.full_scale.map(|f| f / c.scale * scale);
+            c.scale = scale;
+        }
+    }
+
+    /// Name the channels and declare their roles (as a run file records them).
+    pub fn set_channel(&mut self, channel: usize, name: &str, role: Role) {
+        if let Some(c) = self.info.channels.get_mut(channel) {
+            c.name = name.to_string();
+            c.role = role;
+        }
+    }
+}
+
+fn describe(e: hound::Error, path: &Path) -> Error {
+    let shown = path.display();
+    match e {
+        hound::Error::IoError(io) if io.kind() == std::io::ErrorKind::NotFound => {
+            Error::new(format!("cannot open '{shown}': no such file"))
+        }
+        hound::Error::IoError(io) if io.kind() == std::io::ErrorKind::UnexpectedEof => {
+            Error::new(format!("'{shown}' ends early: the WAV file is truncated"))
+        }
+        hound::Error::IoError(io) => Error::new(format!(
+            "cannot read '{shown}': {}",
+            crate::error::describe_io(&io)
+        )),
+        hound::Error::FormatError(what) if what.contains("RIFF") || what.contains("WAVE") => {
+            Error::new(format!("'{shown}' is not a WAV file ({what})"))
+        }
+        hound::Error::FormatError(what) => {
+            Error::new(format!("'{shown}' is not a valid WAV file: {what}"))
+        }
+        hound::Error::Unsupported => Error::new(format!(
+            "'{shown}' uses a WAV encoding this tool does not read (only PCM integer and 32-bit float)"
+        )),
+        other => Error::new(format!("cannot read '{shown}': {other}")),
+    }
+}
+
+impl Source for WavSource {
+    fn info(&self) -> &StreamInfo {
+        &self.info
+    }
+
+    fn next_block(&mut self) -> Result<Option<Block>> {
+        if self.next >= self.frames_total {
+            return Ok(None);
+        }
+        let n_ch = self.info.channels.len();
+        let frames = (self.frames_total - self.next).min(self.block as u64) as usize;
+        let mut channels = vec![Vec::with_capacity(frames); n_ch];
+        let scales: Vec<f64> = self.info.channels.iter().map(|c| c.scale).collect();
+        let shown = self.path.display();
+        let total = frames * n_ch;
+        let mut read = 0usize;
+        if self.float {
+            for s in self.reader.samples::<f32>().take(total) {
+                let v = s.map_err(|e| describe(e, &self.path))? as f64;
+                let c = read % n_ch;
+                if !v.is_finite() {
+                    crate::fail!(
+                        "'{shown}' holds a sample that is not a finite number (channel {c}, frame {})",
+                        self.next + (read / n_ch) as u64
+                    );
+                }
+                channels[c].push(v * scales[c]);
+                read += 1;
+            }
+        } else {
+            for s in self.reader.samples::<i32>().take(total) {
+                let v = s.map_err(|e| describe(e, &self.path))? as f64;
+                let c = read % n_ch;
+                channels[c].push(v * scales[c]);
+                read += 1;
+            }
+        }
+        if read < total {
+            crate::fail!("'{shown}' ends early: the WAV file is truncated");
+        }
+        let block = Block {
+            start: self.next,
+            channels,
+        };
+        self.next += frames as u64;
+        if let Some(t0) = self.pace {
+            let due = std::time::Duration::from_secs_f64(self.next as f64 / self.info.sample_rate);
+            if let Some(wait) = due.checked_sub(t0.elapsed()) {
+                std::thread::sleep(wait);
+            }
+        }
+        Ok(Some(block))
+    }
+}

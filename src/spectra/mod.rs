@@ -1,0 +1,272 @@
+//! Spectral stage: windows, FFT, averaging over hits, and the estimators read from it.
+
+pub mod averager;
+pub mod window;
+
+use crate::signal::Roles;
+use averager::{CrossAccumulator, Scaling, Spread, Transformer, line_factors};
+use realfft::num_complex::Complex64;
+use serde::{Deserialize, Serialize};
+pub use window::{WindowConfig, Windows, remove_window_damping};
+
+/// Which FRF estimator to read.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize, clap::ValueEnum)]
+#[serde(rename_all = "snake_case")]
+pub enum Estimator {
+    /// Gfx/Gff: best when the response is the noisier channel.
+    #[default]
+    H1,
+    /// Gxx/Gxf: best when the force is the noisier channel.
+    H2,
+}
+
+/// What the modes are read from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case", tag = "kind", content = "estimator")]
+pub enum Basis {
+    /// Force-to-response FRF (accelerance when the response is an accelerometer).
+    Frf(Estimator),
+    /// Averaged energy spectrum of the response alone (no force channel).
+    Autospectrum,
+    /// Base-to-response transmissibility (H1 form, base as input).
+    Transmissibility,
+}
+
+impl Basis {
+    pub fn label(self) -> &'static str {
+        match self {
+            Basis::Frf(Estimator::H1) => "FRF H1",
+            Basis::Frf(Estimator::H2) => "FRF H2",
+            Basis::Autospectrum => "response spectrum",
+            Basis::Transmissibility => "transmissibility",
+        }
+    }
+}
+
+/// A curve over frequency ready for display and mode finding.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Curve {
+    pub basis: Basis,
+    /// Magnitude per line: |H| in response unit per force unit, |T| (ratio), or the
+    /// square root of the energy spectral density, i.e. the magnitude of the response's
+    /// Fourier transform (unit/Hz).
+    pub magnitude: Vec<f64>,
+    /// Phase in degrees, where defined.
+    pub phase_deg: Option<Vec<f64>>,
+    pub coherence: Option<Vec<f64>>,
+    /// Hit-to-hit standard deviation of the level in dB (response spectrum only).
+    pub spread_db: Option<Vec<f64>>,
+    pub unit: String,
+}
+
+/// Everything the averager knows after the hits so far.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Spectra {
+    pub freqs: Vec<f64>,
+    /// True resolution fs / record length, in Hz (zero padding does not improve it).
+    pub resolution_hz: f64,
+    pub hits: usize,
+    pub tau_s: Option<f64>,
+    /// Force-to-response auto and cross spectra (if there is a force channel).
+    pub force_response: Option<(Vec<f64>, Vec<f64>, Vec<Complex64>)>,
+    /// Base-to-response spectra (if there is a base channel).
+    pub base_response: Option<(Vec<f64>, Vec<f64>, Vec<Complex64>)>,
+    /// Response energy spectral density, unit^2 s/Hz.
+    pub response_esd: Vec<f64>,
+    pub spread_db: Vec<f64>,
+    pub response_unit: String,
+    pub force_unit: String,
+}
+
+impl Spectra {
+    /// The curve for a basis, or `None` when the channels for it are missing.
+    pub fn curve(&self, basis: Basis) -> Option<Curve> {
+        let phase = |h: &[Complex64]| h.iter().map(|z| z.arg().to_degrees()).collect();
+        match basis {
+            Basis::Frf(est) => {
+                let (gff, gxx, gfx) = self.force_response.as_ref()?;
+                let h = match est {
+                    Estimator::H1 => averager::h1(gff, gfx),
+                    Estimator::H2 => averager::h2(gxx, gfx),
+                };
+                Some(Curve {
+                    basis,
+                    magnitude: h.iter().map(|z| z.norm()).collect(),
+                    phase_deg: Some(phase(&h)),
+                    coherence: Some(averager::coherence(gff, gxx, gfx)),
+                    spread_db: None,
+                    unit: format!("{}/{}", self.response_unit, self.force_unit),
+                })
+            }
+            Basis::Transmissibility => {
+                let (gbb, gxx, gbx) = self.base_response.as_ref()?;
+                let t = averager::h1(gbb, gbx);
+                Some(Curve {
+                    basis,
+                    magnitude: t.iter().map(|z| z.norm()).collect(),
+                    phase_deg: Some(phase(&t)),
+                    coherence: Some(averager::coherence(gbb, gxx, gbx)),
+                    spread_db: None,
+                    unit: "ratio".into(),
+                })
+            }
+            Basis::Autospectrum => Some(Curve {
+                basis,
+                magnitude: self.response_esd.iter().map(|g| g.sqrt()).collect(),
+                phase_deg: None,
+                coherence: None,
+                spread_db: Some(self.spread_db.clone()),
+                unit: format!("{}/Hz", self.response_unit),
+            }),
+        }
+    }
+
+    /// (force unit, response unit).
+    pub fn units(&self) -> (String, String) {
+        (self.force_unit.clone(), self.response_unit.clone())
+    }
+
+    /// The natural basis for these channels: FRF if there is a force, else the spectrum.
+    pub fn default_basis(&self, estimator: Estimator) -> Basis {
+        if self.force_response.is_some() {
+            Basis::Frf(estimator)
+        } else {
+            Basis::Autospectrum
+        }
+    }
+}
+
+/// Settings of the spectral stage.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SpectraConfig {
+    pub windows: WindowConfig,
+    /// Zero-padding factor of the FFT (1 = none). Valid for records windowed to decay.
+    pub pad: usize,
+}
+
+impl Default for SpectraConfig {
+    fn default() -> Self {
+        SpectraConfig {
+            windows: WindowConfig::default(),
+            pad: 2,
+        }
+    }
+}
+
+/// Windows each accepted record, transforms it and adds it to the averages.
+pub struct SpectralAverager {
+    roles: Roles,
+    windows: Windows,
+    /// Force window times the exponential window.
+    force_exp: Vec<f64>,
+    fft: Transformer,
+    fs: f64,
+    record_len: usize,
+    factors: Vec<f64>,
+    force_response: Option<CrossAccumulator>,
+    base_response: Option<CrossAccumulator>,
+    response_auto: Vec<f64>,
+    spread: Spread,
+    count: usize,
+    units: (String, String),
+    bufs: [Vec<Complex64>; 3],
+}
+
+impl SpectralAverager {
+    /// `record_len` samples per record with the trigger at `trigger_index`.
+    pub fn new(
+        roles: Roles,
+        record_len: usize,
+        trigger_index: usize,
+        fs: f64,
+        cfg: &SpectraConfig,
+        units: (String, String),
+    ) -> Self {
+        let windows = Windows::new(&cfg.windows, record_len, trigger_index, fs);
+        let fft = Transformer::new(record_len * cfg.pad.max(1), fs);
+        let lines = fft.lines();
+        let factors = line_factors(fft.n_fft(), fs, Scaling::Energy);
+        let force_exp = (windows.force.iter().zip(&windows.exponential))
+            .map(|(a, b)| a * b)
+            .collect();
+        SpectralAverager {
+            force_exp,
+            force_response: roles.force.map(|_| CrossAccumulator::new(lines)),
+            base_response: roles.base.map(|_| CrossAccumulator::new(lines)),
+            response_auto: vec![0.0; lines],
+            spread: Spread::new(lines),
+            count: 0,
+            bufs: std::array::from_fn(|_| vec![Complex64::new(0.0, 0.0); lines]),
+            roles,
+            windows,
+            fft,
+            fs,
+            record_len,
+            factors,
+            units,
+        }
+    }
+
+    pub fn windows(&self) -> &Windows {
+        &self.windows
+    }
+
+    /// Add one record (one vector per stream channel, baseline removed).
+    pub fn add(&mut self, record: &[Vec<f64>]) {
+        let [fx, rx, bx] = &mut self.bufs;
+        self.fft
+            .transform(&record[self.roles.response], &self.windows.exponential, rx);
+        if let (Some(f), Some(acc)) = (self.roles.force, self.force_response.as_mut()) {
+            // Force: force window times the same exponential, so the pole shift is exact.
+            self.fft.transform(&record[f], &self.force_exp, fx);
+            acc.add(fx, rx);
+        }
+        if let (Some(b), Some(acc)) = (self.roles.base, self.base_response.as_mut()) {
+            self.fft
+                .transform(&record[b], &self.windows.exponential, bx);
+            acc.add(bx, rx);
+        }
+        for (s, x) in self.response_auto.iter_mut().zip(rx.iter()) {
+            *s += x.norm_sqr();
+        }
+        let factors = &self.factors;
+        self.spread.add(
+            rx.iter()
+                .zip(factors)
+                .map(|(x, c)| 10.0 * (x.norm_sqr() * c).max(1e-300).log10()),
+        );
+        self.count += 1;
+    }
+
+    pub fn count(&self) -> usize {
+        self.count
+    }
+
+    pub fn spectra(&self) -> Spectra {
+        let df = self.fs / self.fft.n_fft() as f64;
+        let n = self.count.max(1) as f64;
+        Spectra {
+            freqs: (0..self.fft.lines()).map(|k| k as f64 * df).collect(),
+            resolution_hz: self.fs / self.record_len as f64,
+            hits: self.count,
+            tau_s: self.windows.tau_s,
+            force_response: self
+                .force_response
+                .as_ref()
+                .map(|a| a.averaged(&self.factors)),
+            base_response: self
+                .base_response
+                .as_ref()
+                .map(|a| a.averaged(&self.factors)),
+            response_esd: self
+                .response_auto
+                .iter()
+                .zip(&self.factors)
+                .map(|(g, c)| g * c / n)
+                .collect(),
+            spread_db: self.spread.std_dev(),
+            force_unit: self.units.0.clone(),
+            response_unit: self.units.1.clone(),
+        }
+    }
+}
