@@ -186,6 +186,7 @@ pub struct HitDetector {
     record: Vec<Vec<f64>>,
     phase: Phase,
     seen: u64,
+    lost: u64,
     hits: usize,
 }
 
@@ -211,6 +212,7 @@ impl HitDetector {
             record: vec![Vec::with_capacity(record_len); n],
             phase: Phase::Idle,
             seen: 0,
+            lost: 0,
             hits: 0,
             trigger,
             checks,
@@ -260,7 +262,27 @@ impl HitDetector {
         self.seen
     }
 
+    /// Samples lost upstream (overruns) so far, seen as gaps in the block positions.
+    pub fn lost_samples(&self) -> u64 {
+        self.lost
+    }
+
+    /// A gap in the stream: a record in progress is lost and the pre-trigger ring refills.
+    fn skip_to(&mut self, position: u64) {
+        self.lost += position - self.seen;
+        self.seen = position;
+        self.phase = Phase::Idle;
+        for c in 0..self.ring.len() {
+            self.ring[c].clear();
+            self.record[c].clear();
+            self.floors[c].discard_chunk();
+        }
+    }
+
     pub fn push(&mut self, block: &Block, out: &mut Vec<Hit>) {
+        if block.start > self.seen {
+            self.skip_to(block.start);
+        }
         let n_ch = self.ring.len();
         for k in 0..block.len() {
             let idx = self.seen;

@@ -12,3 +12,4 @@ pub mod run; // run files (WAV, JSON, CSV), atomic writes, comparison
 pub mod signal; // channels, roles, units and sample blocks
 pub mod source; // WAV replay, simulator (later: serial, audio)
 pub mod spectra; // windows, FFT, averaged spectra, H1/H2/coherence
+pub mod tui; // the terminal app: model, update, view

@@ -139,6 +139,7 @@ pub struct Simulator {
     next_auto_s: f64,
     impacts: Vec<Impact>,
     accel: Vec<f64>,
+    pace: Option<std::time::Instant>,
 }
 
 impl Simulator {
@@ -162,11 +163,18 @@ impl Simulator {
             auto_taps,
             impacts: Vec::new(),
             accel: vec![0.0; n_resp],
+            pace: None,
         }
     }
 
     pub fn with_block_len(mut self, n: usize) -> Self {
         self.block_len = n.max(1);
+        self
+    }
+
+    /// Produce blocks no faster than real time (for the live bench).
+    pub fn real_time(mut self) -> Self {
+        self.pace = Some(std::time::Instant::now());
         self
     }
 
@@ -229,7 +237,18 @@ impl Source for Simulator {
         &self.info
     }
 
+    fn tap(&mut self) {
+        self.tap_now();
+    }
+
     fn next_block(&mut self) -> Result<Option<Block>> {
+        if let Some(t0) = self.pace {
+            // Real time: wait until the wall clock has caught up with the stream.
+            let due = std::time::Duration::from_secs_f64(self.next_sample as f64 / self.plan.sample_rate);
+            if let Some(wait) = due.checked_sub(t0.elapsed()) {
+                std::thread::sleep(wait);
+            }
+        }
         let mut n = self.block_len as u64;
         if let Some(len) = self.length {
             if self.next_sample >= len {
