@@ -2,9 +2,12 @@
 
 pub mod analyze;
 pub mod args;
+pub mod capture;
 pub mod compare;
+pub mod ports;
 pub mod report;
 pub mod simulate;
+pub mod source_args;
 
 use crate::error::Result;
 use clap::{Parser, Subcommand};
@@ -32,6 +35,12 @@ pub enum Command {
     Analyze(Box<analyze::AnalyzeArgs>),
     /// Compare the mode lists of variants against the first one.
     Compare(compare::CompareArgs),
+    /// Capture hits live (serial, sound card, replay or the simulated bench) without the app.
+    Capture(Box<capture::CaptureArgs>),
+    /// List serial ports.
+    Ports,
+    /// List sound-card inputs (needs the audio feature).
+    Devices,
 }
 
 pub fn run(cli: Cli) -> Result<()> {
@@ -39,6 +48,9 @@ pub fn run(cli: Cli) -> Result<()> {
         Some(Command::Simulate(a)) => simulate::run(&a),
         Some(Command::Analyze(a)) => analyze::run(&a),
         Some(Command::Compare(a)) => compare::run(&a),
+        Some(Command::Capture(a)) => capture::run(&a),
+        Some(Command::Ports) => ports::ports(),
+        Some(Command::Devices) => ports::devices(),
         None => {
             crate::fail!(
                 "the terminal app is not built yet; try `tapmodes simulate` then `tapmodes analyze`"

@@ -2,6 +2,7 @@
 
 pub mod atomic;
 pub mod compare;
+pub mod curve_read;
 pub mod recording;
 
 use crate::error::{Context, Error, Result};

@@ -69,10 +69,8 @@ impl LiveFeed {
                     return;
                 }
                 let next = source.next_block();
-                if let Some(c) = source.link_counters() {
-                    if let Ok(mut l) = h.link.lock() {
-                        *l = Some(c);
-                    }
+                if let (Some(c), Ok(mut l)) = (source.link_counters(), h.link.lock()) {
+                    *l = Some(c);
                 }
                 match next {
                     Ok(Some(block)) => {

@@ -1,6 +1,7 @@
 //! Where samples come from: every source yields blocks with a rate and channel roles.
 
 pub mod live;
+pub mod serial;
 pub mod simulator;
 pub mod wav;
 

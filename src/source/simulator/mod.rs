@@ -244,7 +244,8 @@ impl Source for Simulator {
     fn next_block(&mut self) -> Result<Option<Block>> {
         if let Some(t0) = self.pace {
             // Real time: wait until the wall clock has caught up with the stream.
-            let due = std::time::Duration::from_secs_f64(self.next_sample as f64 / self.plan.sample_rate);
+            let due =
+                std::time::Duration::from_secs_f64(self.next_sample as f64 / self.plan.sample_rate);
             if let Some(wait) = due.checked_sub(t0.elapsed()) {
                 std::thread::sleep(wait);
             }

@@ -1,0 +1,216 @@
+//! `tapmodes capture`: headless live capture that saves the run files after every accepted hit.
+
+use super::args::{AnalysisArgs, ChannelArgs};
+use super::report;
+use super::source_args::SourceArgs;
+use crate::error::{Context, Result};
+use crate::pipeline::Analysis;
+use crate::run::recording::RecordingWriter;
+use crate::run::{Variant, write_run_files};
+use crate::source::live::{Feed, LiveFeed};
+use clap::Args;
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
+
+/// How a recording written by this tool is encoded (stored in the run file).
+pub const RECORDING_ENCODING: &str = "float32 in channel units";
+
+#[derive(Debug, Args)]
+pub struct CaptureArgs {
+    #[command(flatten)]
+    pub source: SourceArgs,
+    /// Stop after this many accepted hits.
+    #[arg(long, default_value_t = 5, value_name = "N")]
+    pub hits: usize,
+    /// Folder for the run files (created if missing).
+    #[arg(long, default_value = "runs", value_name = "DIR")]
+    pub out: PathBuf,
+    /// Variant label; also names the files (LABEL.wav, LABEL.json, LABEL.csv).
+    #[arg(long, default_value = "variant", value_name = "LABEL")]
+    pub variant: String,
+    /// Free-text note stored with the variant.
+    #[arg(long, default_value = "", value_name = "TEXT")]
+    pub note: String,
+    #[command(flatten)]
+    pub channels: ChannelArgs,
+    #[command(flatten)]
+    pub analysis: AnalysisArgs,
+}
+
+/// A file stem for a label that does not clobber an earlier run in `dir`.
+pub fn fresh_stem(dir: &Path, label: &str) -> String {
+    let clean: String = label
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || "-_.".contains(c) {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect();
+    let clean = if clean.is_empty() {
+        "variant".to_string()
+    } else {
+        clean
+    };
+    let taken =
+        |s: &str| dir.join(format!("{s}.json")).exists() || dir.join(format!("{s}.wav")).exists();
+    if !taken(&clean) {
+        return clean;
+    }
+    (2..)
+        .map(|i| format!("{clean}-{i}"))
+        .find(|s| !taken(s))
+        .unwrap_or(clean)
+}
+
+pub fn run(a: &CaptureArgs) -> Result<()> {
+    let cfg = a.analysis.config()?;
+    let opened = a.source.open(&a.channels, true)?;
+    std::fs::create_dir_all(&a.out)
+        .with_context(|| format!("cannot create folder '{}'", a.out.display()))?;
+    let stem = fresh_stem(&a.out, &a.variant);
+    let wav = a.out.join(format!("{stem}.wav"));
+    let json = a.out.join(format!("{stem}.json"));
+    let info = opened.source.info().clone();
+    let mut analysis = Analysis::new(&info, opened.roles, cfg, false)?;
+    let mut rec = RecordingWriter::create(&wav, &info)?;
+    let variant = Variant {
+        label: a.variant.clone(),
+        note: a.note.clone(),
+    };
+    let stop = Arc::new(AtomicBool::new(false));
+    {
+        let stop = stop.clone();
+        // A second handler cannot be installed in the same process (tests); ignore that.
+        let _ = ctrlc::set_handler(move || stop.store(true, Ordering::SeqCst));
+    }
+    eprintln!(
+        "capturing from {} at {} Hz ({} channels); {} accepted hits wanted; Ctrl-C ends early",
+        info.source,
+        info.sample_rate,
+        info.channels.len(),
+        a.hits
+    );
+    let feed = LiveFeed::start(opened.source);
+    let fs = info.sample_rate;
+    let mut failure = None;
+    let mut seen = 0;
+    while !stop.load(Ordering::SeqCst) && analysis.accepted() < a.hits {
+        match feed.recv_timeout(std::time::Duration::from_millis(100)) {
+            None => continue,
+            Some(Feed::Ended(None)) => break,
+            Some(Feed::Ended(Some(e))) => {
+                failure = Some(e);
+                break;
+            }
+            Some(Feed::Block(b)) => {
+                rec.append(&b)?;
+                if analysis.push(&b) == 0 {
+                    continue;
+                }
+                let mut accepted_now = false;
+                for h in &analysis.hits()[seen..] {
+                    accepted_now |= h.verdict.is_accepted();
+                    eprintln!(
+                        "hit {} at {:.2} s: {} ({}){}",
+                        h.number,
+                        h.trigger_sample as f64 / fs,
+                        h.verdict.label(),
+                        h.reason,
+                        link_note(&feed, &analysis)
+                    );
+                }
+                seen = analysis.hits().len();
+                if accepted_now {
+                    // Save as each accepted hit lands: nothing accepted is lost later.
+                    rec.flush()?;
+                    write_run_files(
+                        &analysis,
+                        variant.clone(),
+                        &json,
+                        Some((&wav, RECORDING_ENCODING)),
+                    )?;
+                    eprintln!(
+                        "  {} of {} accepted hits saved to {}",
+                        analysis.accepted(),
+                        a.hits,
+                        json.display()
+                    );
+                }
+            }
+        }
+    }
+    // Everything the thread already delivered belongs in the recording.
+    for f in feed.drain() {
+        if let Feed::Block(b) = f {
+            rec.append(&b)?;
+        }
+    }
+    drop(feed);
+    rec.finish()?;
+    let run = write_run_files(&analysis, variant, &json, Some((&wav, RECORDING_ENCODING)))?;
+    eprintln!(
+        "{} hits, {} accepted{}{}",
+        run.hits_total,
+        run.hits_accepted,
+        match report::rejection_summary(analysis.hits()) {
+            s if s.is_empty() => String::new(),
+            s => format!(" (rejected: {s})"),
+        },
+        if analysis.detector().lost_samples() > 0 {
+            format!(
+                "; {} samples lost to overruns or link loss",
+                analysis.detector().lost_samples()
+            )
+        } else {
+            String::new()
+        }
+    );
+    print!("{}", report::mode_table(&run.modes));
+    println!("wrote {} and {}", wav.display(), json.display());
+    if let Some(e) = failure {
+        return Err(e.context(format!(
+            "capture ended early with {} accepted hits saved in '{}'",
+            run.hits_accepted,
+            json.display()
+        )));
+    }
+    if stop.load(Ordering::SeqCst) {
+        eprintln!("stopped by Ctrl-C; the run files hold everything up to now");
+    } else if run.hits_accepted < a.hits {
+        crate::fail!(
+            "the source ended after {} of {} accepted hits; what was captured is in '{}'",
+            run.hits_accepted,
+            a.hits,
+            json.display()
+        );
+    }
+    Ok(())
+}
+
+fn link_note(feed: &LiveFeed, analysis: &Analysis) -> String {
+    let mut s = String::new();
+    if let Some(l) = feed
+        .link()
+        .filter(|l| l.packets_lost + l.packets_corrupt + l.junk_lines > 0)
+    {
+        {
+            s += &format!(
+                "; link: {} lost, {} corrupt, {} resyncs, {} junk lines",
+                l.packets_lost, l.packets_corrupt, l.resyncs, l.junk_lines
+            );
+        }
+    }
+    let over = feed.overrun_frames();
+    if over > 0 {
+        s += &format!("; {over} frames dropped (overrun)");
+    }
+    let lost = analysis.detector().lost_samples();
+    if lost > 0 && over == 0 {
+        s += &format!("; {lost} frames missing");
+    }
+    s
+}

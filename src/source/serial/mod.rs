@@ -1,0 +1,253 @@
+//! Serial accelerometers: a port opened with `serialport`, decoded by our own protocol
+//! (`codec`, specified in firmware-notes/protocol.md), delivered as blocks.
+
+pub mod codec;
+
+use crate::error::{Error, Result};
+use crate::signal::{Block, ChannelInfo, Role, StreamInfo};
+use crate::source::{LinkCounters, Source};
+use codec::{Decoded, Decoder, StreamHeader};
+use std::io::Read;
+use std::time::{Duration, Instant};
+
+/// How long to wait for the stream header after opening the port.
+pub const HEADER_TIMEOUT: Duration = Duration::from_secs(5);
+/// Silence longer than this on a running stream is reported as a lost device.
+pub const SILENCE_LIMIT: Duration = Duration::from_secs(3);
+
+/// Anything bytes can be read from: a serial port, or a pipe in tests.
+pub trait ByteLink: Send {
+    /// Read available bytes; Ok(0) on timeout with nothing read.
+    fn read_some(&mut self, buf: &mut [u8]) -> std::io::Result<usize>;
+    fn send(&mut self, bytes: &[u8]) -> std::io::Result<()>;
+}
+
+struct PortLink(Box<dyn serialport::SerialPort>);
+
+impl ByteLink for PortLink {
+    fn read_some(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        match self.0.read(buf) {
+            Err(e) if e.kind() == std::io::ErrorKind::TimedOut => Ok(0),
+            other => other,
+        }
+    }
+    fn send(&mut self, bytes: &[u8]) -> std::io::Result<()> {
+        std::io::Write::write_all(&mut self.0, bytes)
+    }
+}
+
+pub struct SerialSource {
+    name: String,
+    link: Box<dyn ByteLink>,
+    decoder: Decoder,
+    header: StreamHeader,
+    info: StreamInfo,
+    pending: Vec<Vec<f64>>,
+    /// Stream position of the next frame (frames received plus frames known lost).
+    position: u64,
+    /// Frames received after a gap, held for the next block, and the gap's length.
+    carry: Vec<Vec<f64>>,
+    gap: u64,
+    last_data: Instant,
+    block_len: usize,
+    buf: Vec<u8>,
+}
+
+impl SerialSource {
+    /// Open `path` at `baud` and wait for the stream header.
+    pub fn open(path: &str, baud: u32) -> Result<Self> {
+        let port = serialport::new(path, baud)
+            .timeout(Duration::from_millis(50))
+            .open()
+            .map_err(|e| {
+                Error::new(format!(
+                    "cannot open serial port '{path}': {}",
+                    port_error(&e)
+                ))
+            })?;
+        Self::from_link(path, Box::new(PortLink(port)))
+    }
+
+    /// Start on any byte link (used by tests with pipes and pseudo-terminals).
+    pub fn from_link(name: &str, mut link: Box<dyn ByteLink>) -> Result<Self> {
+        // Ask the device to (re)send its header; devices that always send one ignore it.
+        let _ = link.send(b"h");
+        let mut decoder = Decoder::new();
+        let mut out = Vec::new();
+        let mut buf = vec![0u8; 4096];
+        let t0 = Instant::now();
+        let header = loop {
+            if let Some(h) = decoder.header() {
+                break h.clone();
+            }
+            if t0.elapsed() > HEADER_TIMEOUT {
+                let why = decoder.diagnosis().unwrap_or_else(|| {
+                    if decoder.stats().bytes == 0 {
+                        "no bytes arrived: is the device streaming?".to_string()
+                    } else {
+                        "no stream header (# rate_hz=... channels=...) arrived".to_string()
+                    }
+                });
+                crate::fail!(
+                    "'{name}' gave no usable stream within {} s: {why}",
+                    HEADER_TIMEOUT.as_secs()
+                );
+            }
+            let n = link.read_some(&mut buf).map_err(|e| {
+                Error::new(format!(
+                    "cannot read serial port '{name}': {}",
+                    crate::error::describe_io(&e)
+                ))
+            })?;
+            decoder.push(&buf[..n], &mut out);
+            if n == 0 {
+                std::thread::sleep(Duration::from_millis(5));
+            }
+        };
+        let mut pending = Vec::new();
+        let mut seen_header = false;
+        for d in out {
+            match d {
+                Decoded::Header(_) => seen_header = true,
+                Decoded::Frame(f) if seen_header => pending.push(f),
+                Decoded::Frame(_) => {}
+            }
+        }
+        let info = info_from(name, &header);
+        Ok(SerialSource {
+            name: name.to_string(),
+            link,
+            block_len: (header.rate_hz / 50.0).ceil().max(1.0) as usize,
+            decoder,
+            header,
+            info,
+            pending,
+            position: 0,
+            carry: Vec::new(),
+            gap: 0,
+            last_data: Instant::now(),
+            buf,
+        })
+    }
+
+    /// Channel layout, for applying calibration from the command line.
+    pub fn info_mut(&mut self) -> &mut StreamInfo {
+        &mut self.info
+    }
+
+    pub fn stats(&self) -> codec::LinkStats {
+        self.decoder.stats()
+    }
+}
+
+fn port_error(e: &serialport::Error) -> String {
+    match e.kind() {
+        serialport::ErrorKind::NoDevice => "no such device (unplugged?)".into(),
+        serialport::ErrorKind::Io(std::io::ErrorKind::NotFound) => "no such device".into(),
+        serialport::ErrorKind::Io(std::io::ErrorKind::PermissionDenied) => {
+            "permission denied (on Linux, join the 'dialout' group)".into()
+        }
+        _ => e.to_string(),
+    }
+}
+
+fn info_from(name: &str, h: &StreamHeader) -> StreamInfo {
+    StreamInfo {
+        source: format!("serial {name}"),
+        sample_rate: h.rate_hz,
+        channels: (0..h.channels.len())
+            .map(|i| ChannelInfo {
+                name: h.channels[i].clone(),
+                role: Role::Unused,
+                unit: h.unit(i).to_string(),
+                scale: h.scale(i),
+                full_scale: None,
+            })
+            .collect(),
+    }
+}
+
+impl Source for SerialSource {
+    fn info(&self) -> &StreamInfo {
+        &self.info
+    }
+
+    fn link_counters(&self) -> Option<LinkCounters> {
+        let s = self.decoder.stats();
+        Some(LinkCounters {
+            packets_ok: s.packets_ok,
+            packets_lost: s.packets_lost,
+            packets_corrupt: s.packets_corrupt,
+            resyncs: s.resyncs,
+            junk_lines: s.junk_lines,
+        })
+    }
+
+    fn next_block(&mut self) -> Result<Option<Block>> {
+        let started = Instant::now();
+        let mut out = Vec::new();
+        while self.pending.len() < self.block_len && started.elapsed() < Duration::from_millis(40) {
+            let n = match self.link.read_some(&mut self.buf) {
+                Ok(n) => n,
+                Err(e) => crate::fail!(
+                    "the serial device '{}' stopped ({}): unplugged or reset? Hits accepted so far are saved",
+                    self.name,
+                    crate::error::describe_io(&e)
+                ),
+            };
+            if n == 0 {
+                if self.last_data.elapsed() > SILENCE_LIMIT {
+                    crate::fail!(
+                        "no data from '{}' for {} s: the device stopped streaming or was unplugged",
+                        self.name,
+                        SILENCE_LIMIT.as_secs()
+                    );
+                }
+                std::thread::sleep(Duration::from_millis(2));
+                continue;
+            }
+            self.last_data = Instant::now();
+            let lost_before = self.decoder.frames_lost();
+            self.decoder.push(&self.buf[..n], &mut out);
+            let lost = self.decoder.frames_lost() - lost_before;
+            let before_gap = self.pending.len();
+            for d in out.drain(..) {
+                match d {
+                    Decoded::Header(h) => {
+                        if h.rate_hz != self.header.rate_hz || h.channels != self.header.channels {
+                            crate::fail!(
+                                "'{}' restarted with a different stream ({} Hz, channels {}): start a new run",
+                                self.name,
+                                h.rate_hz,
+                                h.channels.join(",")
+                            );
+                        }
+                    }
+                    Decoded::Frame(f) => self.pending.push(f),
+                }
+            }
+            if lost > 0 {
+                // Frames known lost: close the block before the gap and carry what came
+                // after it, so the gap shows in the next block's `start`.
+                self.carry = self.pending.split_off(before_gap);
+                self.gap = lost;
+                break;
+            }
+        }
+        let n_ch = self.info.channels.len();
+        let mut channels = vec![Vec::with_capacity(self.pending.len()); n_ch];
+        for f in self.pending.drain(..) {
+            for (c, v) in f.into_iter().enumerate().take(n_ch) {
+                channels[c].push(v);
+            }
+        }
+        let len = channels.first().map_or(0, Vec::len) as u64;
+        let block = Block {
+            start: self.position,
+            channels,
+        };
+        self.position += len + std::mem::take(&mut self.gap);
+        self.pending = std::mem::take(&mut self.carry);
+        Ok(Some(block))
+    }
+}
