@@ -162,8 +162,9 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
         },
         if analysis.detector().lost_samples() > 0 {
             format!(
-                "; {} samples lost to overruns or link loss",
-                analysis.detector().lost_samples()
+                "; {} samples lost to overruns or link loss, {} hit records abandoned across gaps",
+                analysis.detector().lost_samples(),
+                analysis.detector().interrupted_records()
             )
         } else {
             String::new()

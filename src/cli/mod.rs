@@ -2,6 +2,7 @@
 
 pub mod analyze;
 pub mod args;
+pub mod bench;
 pub mod capture;
 pub mod compare;
 pub mod ports;
@@ -41,6 +42,8 @@ pub enum Command {
     Ports,
     /// List sound-card inputs (needs the audio feature).
     Devices,
+    /// Benchmarks: speed and memory, decoder throughput, accuracy, app latency.
+    Bench(bench::BenchArgs),
 }
 
 pub fn run(cli: Cli) -> Result<()> {
@@ -51,6 +54,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Some(Command::Capture(a)) => capture::run(&a),
         Some(Command::Ports) => ports::ports(),
         Some(Command::Devices) => ports::devices(),
+        Some(Command::Bench(a)) => bench::run(&a),
         None => {
             crate::fail!(
                 "the terminal app is not built yet; try `tapmodes simulate` then `tapmodes analyze`"

@@ -81,3 +81,11 @@ pub fn half_power(
 pub fn damping_from_band(f1: f64, f2: f64, fn_hz: f64) -> f64 {
     (f2 * f2 - f1 * f1) / (4.0 * fn_hz * fn_hz)
 }
+
+/// Natural frequency and damping from the half-power frequencies of a mobility peak:
+/// `fn = sqrt(f1 f2)` and `z = (f2 - f1) / (2 fn)`, exact for a viscous SDOF (the
+/// half-power points solve `m w^2 -+ c w - k = 0`; Ewins 2000, ch. 2; from memory).
+pub fn mobility_band(f1: f64, f2: f64) -> (f64, f64) {
+    let fn_hz = (f1 * f2).sqrt();
+    (fn_hz, (f2 - f1) / (2.0 * fn_hz))
+}

@@ -1,10 +1,15 @@
 //! Mode finding: peaks above the noise floor, refined, with half-power damping and flags.
 
+pub mod fit;
 pub mod halfpower;
 pub mod peaks;
+pub mod ringdown;
+pub mod softmount;
+pub mod uncertainty;
 
 use crate::spectra::{Curve, remove_window_damping};
 use serde::{Deserialize, Serialize};
+use std::f64::consts::PI;
 
 /// Why a mode's numbers deserve caution.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -75,8 +80,29 @@ pub struct Mode {
     pub half_power: Option<HalfPowerBand>,
     /// Damping ratio the exponential window added (already removed above).
     pub window_damping: f64,
+    /// Which estimate the frequency and damping above are: "half_power" or "fit".
     pub method: String,
     pub flags: Vec<Flag>,
+    /// The peak-and-half-power estimate, kept as a cross-check when the fit is reported.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub half_power_estimate: Option<Estimate>,
+    /// The MDOF band fit (see `fit`), when one succeeded.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fit: Option<fit::FittedMode>,
+    /// Hit-to-hit spread and 95 % intervals (see `uncertainty`), when per-hit curves were
+    /// given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub uncertainty: Option<uncertainty::Uncertainty>,
+    /// Ring-down damping from the response alone (see `ringdown`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ringdown: Option<ringdown::RingdownSummary>,
+}
+
+/// A frequency and damping pair from one method (window's damping removed).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Estimate {
+    pub frequency_hz: f64,
+    pub damping_ratio: Option<f64>,
 }
 
 /// Settings of the mode finder.
@@ -89,6 +115,17 @@ pub struct ModeConfig {
     /// ... and this far above the estimated noise floor (dB).
     pub min_above_floor_db: f64,
     pub max_modes: usize,
+    /// The response is an acceleration (accelerometer, contact microphone): peaks are read
+    /// on the curve divided by frequency, i.e. on mobility. For a viscous SDOF the mobility
+    /// peaks exactly at fn and its half-power points satisfy f2 - f1 = 2 z fn and
+    /// f1 f2 = fn^2 exactly (Ewins 2000, *Modal Testing*, ch. 2, mobility of an SDOF; from
+    /// memory), where the accelerance peak sits at fn / sqrt(1 - 2 z^2).
+    #[serde(default = "yes")]
+    pub acceleration_response: bool,
+}
+
+fn yes() -> bool {
+    true
 }
 
 impl Default for ModeConfig {
@@ -98,6 +135,7 @@ impl Default for ModeConfig {
             min_prominence_db: 6.0,
             min_above_floor_db: 10.0,
             max_modes: 12,
+            acceleration_response: true,
         }
     }
 }
@@ -110,13 +148,20 @@ pub fn find_modes(
     tau_s: Option<f64>,
     cfg: &ModeConfig,
 ) -> Vec<Mode> {
+    let mobility =
+        cfg.acceleration_response && curve.basis != crate::spectra::Basis::Transmissibility;
     let db: Vec<f64> = curve
         .magnitude
         .iter()
-        .map(|m| 20.0 * m.max(1e-300).log10())
+        .zip(freqs)
+        .map(|(m, f)| {
+            let m = if mobility { m / f.max(1e-9) } else { *m };
+            20.0 * m.max(1e-300).log10()
+        })
         .collect();
     let picked = peaks::pick(freqs, &db, cfg);
     let peak_freqs: Vec<f64> = picked.iter().map(|p| freqs[p.index]).collect();
+    let mut seeds = Vec::with_capacity(picked.len());
     let mut modes: Vec<Mode> = picked
         .iter()
         .map(|p| {
@@ -129,9 +174,23 @@ pub fn find_modes(
             }
             let (mut f, mut zeta, mut hp) = (refined.frequency_hz, None, None);
             let mut window_damping = 0.0;
+            // Seed of the band fit: apparent values; without a band, 1 % plus the window's.
+            let mut seed = fit::Seed {
+                frequency_hz: f,
+                damping_ratio: 0.01 + tau_s.map_or(0.0, |t| 1.0 / (t * 2.0 * PI * f)),
+            };
             match band {
                 Ok(b) => {
-                    let z_apparent = halfpower::damping_from_band(b.0, b.1, f);
+                    let (f_band, z_apparent) = if mobility {
+                        halfpower::mobility_band(b.0, b.1)
+                    } else {
+                        (f, halfpower::damping_from_band(b.0, b.1, f))
+                    };
+                    f = f_band;
+                    seed = fit::Seed {
+                        frequency_hz: f,
+                        damping_ratio: z_apparent.clamp(1e-4, 0.3),
+                    };
                     let lines = (b.1 - b.0) / resolution_hz;
                     if lines < MIN_LINES {
                         flags.push(Flag::FewLines);
@@ -163,11 +222,12 @@ pub fn find_modes(
                 }
                 Err(halfpower::Blocked::Edge) => flags.push(Flag::NoHalfPower),
             }
+            seeds.push(seed);
             Mode {
                 frequency_hz: f,
                 damping_ratio: zeta,
                 q: zeta.map(|z| 1.0 / (2.0 * z)),
-                magnitude: 10f64.powf(refined.level_db / 20.0),
+                magnitude: curve.magnitude[p.index],
                 phase_deg: curve.phase_deg.as_ref().map(|ph| ph[p.index]),
                 coherence,
                 prominence_db: p.prominence_db,
@@ -175,9 +235,25 @@ pub fn find_modes(
                 window_damping,
                 method: "half_power".into(),
                 flags,
+                half_power_estimate: Some(Estimate {
+                    frequency_hz: f,
+                    damping_ratio: zeta,
+                }),
+                fit: None,
+                uncertainty: None,
+                ringdown: None,
             }
         })
         .collect();
+    fit::refine_modes(
+        freqs,
+        curve,
+        resolution_hz,
+        tau_s,
+        &mut modes,
+        &seeds,
+        &fit::FitConfig::default(),
+    );
     modes.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
     modes
 }

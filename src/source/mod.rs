@@ -1,5 +1,7 @@
 //! Where samples come from: every source yields blocks with a rate and channel roles.
 
+#[cfg(feature = "audio")]
+pub mod audio;
 pub mod live;
 pub mod serial;
 pub mod simulator;

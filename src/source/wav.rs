@@ -111,7 +111,10 @@ fn describe(e: hound::Error, path: &Path) -> Error {
         hound::Error::IoError(io) if io.kind() == std::io::ErrorKind::NotFound => {
             Error::new(format!("cannot open '{shown}': no such file"))
         }
-        hound::Error::IoError(io) if io.kind() == std::io::ErrorKind::UnexpectedEof => {
+        hound::Error::IoError(io)
+            if io.kind() == std::io::ErrorKind::UnexpectedEof
+                || io.to_string().contains("enough bytes") =>
+        {
             Error::new(format!("'{shown}' ends early: the WAV file is truncated"))
         }
         hound::Error::IoError(io) => Error::new(format!(

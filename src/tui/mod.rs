@@ -1,10 +1,32 @@
 //! The terminal app: model / update / view over the shared pipeline.
+//!
+//! - `engine`: owns the analysis and the files; runs on a worker thread in the app.
+//! - `model`: state, key map, `update(&mut Model, Msg) -> Vec<Effect>`.
+//! - `view`: `view(&Model, &mut Frame)`, a pure drawing function.
+//! - `app`: carries out effects, links model and engine, runs the terminal loop.
+//! - `bench`: latency, frame-rate and idle-CPU measurements.
 
-use crate::error::Result;
+pub mod app;
+pub mod bench;
+pub mod engine;
+pub mod model;
+pub mod view;
+
+use crate::error::{Error, Result};
 use crate::pipeline::AnalysisConfig;
 use crate::signal::Roles;
 use crate::source::Source;
+use engine::Inbox;
+use ratatui::Terminal;
+use ratatui::backend::CrosstermBackend;
+use ratatui::crossterm::event::{self, Event, KeyEventKind};
+use ratatui::crossterm::terminal::{
+    EnterAlternateScreen, LeaveAlternateScreen, disable_raw_mode, enable_raw_mode,
+};
+use ratatui::crossterm::{cursor, execute};
 use std::path::PathBuf;
+
+pub use app::App;
 
 /// Everything the app needs to start.
 pub struct Launch {
@@ -22,6 +44,96 @@ pub struct Launch {
     pub compare_with: Vec<PathBuf>,
 }
 
-pub fn run(_launch: Launch) -> Result<()> {
-    crate::fail!("the terminal app is still being built")
+/// Put the terminal back as it was: cooked mode, main screen, visible cursor.
+pub fn restore_terminal() {
+    let _ = disable_raw_mode();
+    let _ = execute!(std::io::stdout(), LeaveAlternateScreen, cursor::Show);
+}
+
+/// Restores the terminal when dropped (normal exit and errors); panics are covered by
+/// the hook installed in `enter`.
+struct TerminalGuard;
+
+impl TerminalGuard {
+    fn enter() -> Result<Self> {
+        let previous = std::panic::take_hook();
+        std::panic::set_hook(Box::new(move |info| {
+            restore_terminal();
+            previous(info);
+        }));
+        enable_raw_mode().map_err(|e| Error::new(format!("cannot set up the terminal: {e}")))?;
+        let guard = TerminalGuard;
+        execute!(std::io::stdout(), EnterAlternateScreen, cursor::Hide)
+            .map_err(|e| Error::new(format!("cannot set up the terminal: {e}")))?;
+        Ok(guard)
+    }
+}
+
+impl Drop for TerminalGuard {
+    fn drop(&mut self) {
+        restore_terminal();
+    }
+}
+
+/// Run the app in the terminal until the operator quits.
+pub fn run(launch: Launch) -> Result<()> {
+    let (tx, rx) = std::sync::mpsc::channel::<Inbox>();
+    let mut app = App::threaded(launch, tx.clone())?;
+    let result = {
+        let _guard = TerminalGuard::enter()?;
+        let backend = CrosstermBackend::new(std::io::stdout());
+        let mut terminal = Terminal::new(backend)
+            .map_err(|e| Error::new(format!("cannot set up the terminal: {e}")))?;
+        // Terminal input on its own thread, into the same inbox as the engine's updates,
+        // so the loop wakes at once for either.
+        std::thread::spawn(move || {
+            loop {
+                let m = match event::read() {
+                    Ok(Event::Key(k)) if k.kind != KeyEventKind::Release => Inbox::Key(k),
+                    Ok(Event::Resize(..)) => Inbox::Resize,
+                    Ok(_) => continue,
+                    Err(_) => return,
+                };
+                if tx.send(m).is_err() {
+                    return;
+                }
+            }
+        });
+        app::drive(&mut app, &mut terminal, &rx, |_, _| false)
+    };
+    app.shutdown();
+    result
+}
+
+impl Launch {
+    /// A launch on a simulated bench preset (the demo, tests and the bench use it).
+    /// `seconds`: stream length (None = endless); `scheduled_taps`: the simulator taps on
+    /// its own schedule; `real_time`: pace the blocks with the wall clock.
+    pub fn simulated(
+        preset: &str,
+        seed: u64,
+        seconds: Option<f64>,
+        scheduled_taps: bool,
+        real_time: bool,
+        out_dir: PathBuf,
+    ) -> Result<Launch> {
+        use crate::source::simulator::{Simulator, presets};
+        let plan = presets::preset(preset, seed)
+            .ok_or_else(|| Error::new(format!("there is no preset '{preset}'")))?;
+        let mut sim = Simulator::new(plan, seconds, scheduled_taps);
+        if real_time {
+            sim = sim.real_time();
+        }
+        let roles = crate::signal::RoleChoice::default().resolve(sim.info())?;
+        Ok(Launch {
+            source: Box::new(sim),
+            roles,
+            config: AnalysisConfig::default(),
+            out_dir,
+            variant: preset.to_string(),
+            auto_tap_s: None,
+            demo: true,
+            compare_with: Vec::new(),
+        })
+    }
 }

@@ -1,0 +1,180 @@
+//! The command-line contract: `analyze` on WAVs of any common layout, and one clear
+//! sentence with a non-zero exit for every kind of bad input.
+
+mod common;
+
+use common::*;
+use tapmodes::source::simulator::presets::preset;
+
+fn sim_counts(seconds: f64) -> (Vec<Vec<f64>>, u32) {
+    let plan = preset("tm9-arm-braced", 4).unwrap();
+    let fs = plan.sample_rate as u32;
+    let (chans, _) = simulate(plan, seconds);
+    (chans, fs)
+}
+
+fn json_modes(path: &std::path::Path) -> Vec<(f64, f64)> {
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    v["modes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|m| {
+            (
+                m["frequency_hz"].as_f64().unwrap(),
+                m["damping_ratio"].as_f64().unwrap_or(-1.0),
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn analyze_reads_every_common_layout() {
+    let dir = temp_dir("layouts");
+    let (chans, fs) = sim_counts(9.0);
+    // (bits, float, gain, mono)
+    let cases = [
+        (16u16, false, 1000.0, false),
+        (24, false, 100_000.0, false),
+        (32, false, 1e7, false),
+        (32, true, 0.02, false),
+        (16, false, 1000.0, true),
+    ];
+    for (i, &(bits, float, gain, mono)) in cases.iter().enumerate() {
+        let wav = dir.join(format!("case{i}.wav"));
+        let out = dir.join(format!("case{i}.json"));
+        let data: Vec<Vec<f64>> = if mono {
+            vec![chans[1].clone()]
+        } else {
+            chans.clone()
+        };
+        write_wav(&wav, fs, &data, bits, float, gain);
+        let (code, stdout, stderr) = tapmodes(&[
+            "analyze",
+            wav.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+        ]);
+        assert_eq!(code, 0, "case {i}: {stderr}");
+        assert!(stdout.contains("accepted"), "{stdout}");
+        let modes = json_modes(&out);
+        // The braced arm's first mode is 171 Hz (simulator truth).
+        assert!(
+            modes
+                .iter()
+                .any(|(f, z)| (f / 171.0 - 1.0).abs() < 0.005 && *z > 0.0),
+            "case {i}: {modes:?}"
+        );
+    }
+}
+
+fn expect_clear_failure(args: &[&str], needle: &str) {
+    let (code, stdout, stderr) = tapmodes(args);
+    assert_ne!(code, 0, "{args:?} should fail; stdout {stdout}");
+    assert!(!stderr.contains("panicked"), "{args:?} panicked: {stderr}");
+    let lines: Vec<&str> = stderr.lines().filter(|l| !l.trim().is_empty()).collect();
+    assert_eq!(lines.len(), 1, "{args:?}: want one line, got {stderr}");
+    assert!(lines[0].starts_with("tapmodes: "), "{stderr}");
+    assert!(
+        lines[0].to_lowercase().contains(needle),
+        "{args:?}: '{}' lacks '{needle}'",
+        lines[0]
+    );
+}
+
+#[test]
+fn bad_input_gives_one_sentence_and_nonzero_exit() {
+    let dir = temp_dir("bad");
+    let p = |n: &str| dir.join(n).to_str().unwrap().to_string();
+    expect_clear_failure(&["analyze", &p("missing.wav")], "no such file");
+    std::fs::write(dir.join("text.wav"), "this is not audio\n").unwrap();
+    expect_clear_failure(&["analyze", &p("text.wav")], "not a wav");
+    // Truncated: a valid file cut in the middle of its data.
+    let (chans, fs) = sim_counts(4.0);
+    write_wav(&dir.join("full.wav"), fs, &chans, 16, false, 1000.0);
+    let bytes = std::fs::read(dir.join("full.wav")).unwrap();
+    std::fs::write(dir.join("cut.wav"), &bytes[..bytes.len() / 2]).unwrap();
+    expect_clear_failure(&["analyze", &p("cut.wav")], "truncated");
+    // Zero channels: a hand-made header (RIFF/WAVE, fmt with 0 channels).
+    let mut zero = Vec::new();
+    zero.extend(b"RIFF");
+    zero.extend(36u32.to_le_bytes());
+    zero.extend(b"WAVEfmt ");
+    zero.extend(16u32.to_le_bytes());
+    zero.extend(1u16.to_le_bytes());
+    zero.extend(0u16.to_le_bytes());
+    zero.extend(8000u32.to_le_bytes());
+    zero.extend(0u32.to_le_bytes());
+    zero.extend(0u16.to_le_bytes());
+    zero.extend(16u16.to_le_bytes());
+    zero.extend(b"data");
+    zero.extend(0u32.to_le_bytes());
+    std::fs::write(dir.join("zero.wav"), zero).unwrap();
+    expect_clear_failure(&["analyze", &p("zero.wav")], "channel");
+    // NaN samples in a float file.
+    let mut nan = chans.clone();
+    nan[1][5000] = f64::NAN;
+    write_wav(&dir.join("nan.wav"), fs, &nan, 32, true, 0.01);
+    expect_clear_failure(&["analyze", &p("nan.wav")], "not a finite number");
+    // Silence: no hit.
+    let quiet = vec![vec![0.0; 20_000], vec![0.0; 20_000]];
+    write_wav(&dir.join("quiet.wav"), fs, &quiet, 16, false, 1.0);
+    expect_clear_failure(&["analyze", &p("quiet.wav")], "no hit");
+    // Channel out of range.
+    expect_clear_failure(
+        &["analyze", &p("full.wav"), "--response-channel", "5"],
+        "does not exist",
+    );
+    // A run file that is not one.
+    std::fs::write(dir.join("junk.json"), "{\"modes\": 3}").unwrap();
+    expect_clear_failure(
+        &["compare", &p("junk.json"), &p("junk.json")],
+        "not a tapmodes run file",
+    );
+}
+
+#[test]
+fn simulate_analyze_compare_round_trip() {
+    let dir = temp_dir("roundtrip");
+    let p = |n: &str| dir.join(n).to_str().unwrap().to_string();
+    for (preset, name) in [("tm9-arm-solid", "solid"), ("tm9-arm-holed", "holed")] {
+        let (code, _, err) = tapmodes(&[
+            "simulate",
+            "--preset",
+            preset,
+            "--out",
+            &p(&format!("{name}.wav")),
+        ]);
+        assert_eq!(code, 0, "{err}");
+        let (code, _, err) = tapmodes(&[
+            "analyze",
+            &p(&format!("{name}.wav")),
+            "--out",
+            &p(&format!("{name}.json")),
+            "--variant",
+            name,
+        ]);
+        assert_eq!(code, 0, "{err}");
+    }
+    let (code, table, err) = tapmodes(&["compare", &p("solid.json"), &p("holed.json")]);
+    assert_eq!(code, 0, "{err}");
+    assert!(table.contains("solid -> holed"), "{table}");
+    // 148 -> 139 Hz in the simulator truth: about -6.1 %, stiffness ratio about 0.88.
+    assert!(
+        table.contains("-6.0") || table.contains("-6.1") || table.contains("-6.2"),
+        "{table}"
+    );
+    let (code, json, _) = tapmodes(&["compare", "--json", &p("solid.json"), &p("holed.json")]);
+    assert_eq!(code, 0);
+    let v: serde_json::Value = serde_json::from_str(&json).unwrap();
+    let first = &v["variants"][0]["matched"][0];
+    assert!((first["stiffness_ratio"].as_f64().unwrap() - (139.0f64 / 148.0).powi(2)).abs() < 0.01);
+    // Re-analysis from the run file reproduces the modes.
+    let (code, _, err) = tapmodes(&["analyze", &p("solid.json"), "--out", &p("again.json")]);
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(
+        json_modes(&dir.join("solid.json")),
+        json_modes(&dir.join("again.json"))
+    );
+}
