@@ -114,10 +114,14 @@ struct Floor {
     count: usize,
     means: std::collections::VecDeque<f64>,
     rmss: std::collections::VecDeque<f64>,
+    /// Medians, recomputed once per completed chunk (not per sample).
+    base: f64,
+    noise: f64,
 }
 
 impl Floor {
-    fn add(&mut self, x: f64) {
+    /// Add a sample; true when it completed a chunk (the medians changed).
+    fn add(&mut self, x: f64) -> bool {
         self.sum += x;
         self.sum_sq += x * x;
         self.count += 1;
@@ -130,8 +134,12 @@ impl Floor {
             }
             self.means.push_back(mean);
             self.rmss.push_back(var.sqrt());
+            self.base = median(self.means.iter().copied());
+            self.noise = median(self.rmss.iter().copied());
             self.discard_chunk();
+            return true;
         }
+        false
     }
     fn discard_chunk(&mut self) {
         self.sum = 0.0;
@@ -142,10 +150,10 @@ impl Floor {
         !self.means.is_empty()
     }
     fn baseline(&self) -> f64 {
-        median(self.means.iter().copied())
+        self.base
     }
     fn noise(&self) -> f64 {
-        median(self.rmss.iter().copied())
+        self.noise
     }
 }
 
@@ -154,12 +162,15 @@ fn median(values: impl Iterator<Item = f64>) -> f64 {
     if v.is_empty() {
         return 0.0;
     }
-    v.sort_by(f64::total_cmp);
     let m = v.len() / 2;
-    if v.len() % 2 == 1 {
-        v[m]
+    let odd = v.len() % 2 == 1;
+    let (low, mid, _) = v.select_nth_unstable_by(m, f64::total_cmp);
+    let upper = *mid;
+    if odd {
+        upper
     } else {
-        0.5 * (v[m - 1] + v[m])
+        let lower = low.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        0.5 * (lower + upper)
     }
 }
 
@@ -297,55 +308,69 @@ impl HitDetector {
             self.skip_to(block.start);
         }
         let n_ch = self.ring.len();
-        for k in 0..block.len() {
-            let idx = self.seen;
-            self.seen += 1;
+        let n = block.len();
+        let mut k = 0;
+        while k < n {
             match self.phase {
                 Phase::Idle => {
-                    let armed = self.floors[self.trigger.channel].ready()
-                        && self.ring[0].len() >= self.pre_len;
-                    let x = block.channels[self.trigger.channel][k];
-                    let fired = armed
-                        && self.threshold().is_some_and(|th| {
-                            (x - self.floors[self.trigger.channel].baseline()).abs() > th
-                        });
-                    if fired {
-                        for c in 0..n_ch {
-                            let f = &mut self.floors[c];
-                            f.discard_chunk();
-                            self.frozen[c] = (f.baseline(), f.noise());
-                            self.record[c].clear();
-                            self.record[c].extend(self.ring[c].drain(..));
-                            self.record[c].push(block.channels[c][k]);
+                    let tc = self.trigger.channel;
+                    let mut th = self.threshold();
+                    let mut base = self.floors[tc].baseline();
+                    while k < n {
+                        let x = block.channels[tc][k];
+                        let fired = th.is_some_and(|t| (x - base).abs() > t)
+                            && self.ring[0].len() >= self.pre_len;
+                        if fired {
+                            let idx = self.seen;
+                            for c in 0..n_ch {
+                                let f = &mut self.floors[c];
+                                f.discard_chunk();
+                                self.frozen[c] = (f.baseline(), f.noise());
+                                self.record[c].clear();
+                                self.record[c].extend(self.ring[c].drain(..));
+                                self.record[c].push(block.channels[c][k]);
+                            }
+                            self.seen += 1;
+                            k += 1;
+                            self.phase = Phase::Recording {
+                                trigger: idx,
+                                start: idx - self.pre_len as u64,
+                            };
+                            self.finish_if_full(out);
+                            break;
                         }
-                        let start = idx - self.pre_len as u64;
-                        self.phase = Phase::Recording {
-                            trigger: idx,
-                            start,
-                        };
-                        self.finish_if_full(out);
-                    } else {
                         for c in 0..n_ch {
-                            let x = block.channels[c][k];
-                            self.floors[c].add(x);
-                            let ring = &mut self.ring[c];
+                            let v = block.channels[c][k];
+                            if self.floors[c].add(v) && c == tc {
+                                th = self.threshold();
+                                base = self.floors[tc].baseline();
+                            }
                             if self.pre_len > 0 {
+                                let ring = &mut self.ring[c];
                                 if ring.len() == self.pre_len {
                                     ring.pop_front();
                                 }
-                                ring.push_back(x);
+                                ring.push_back(v);
                             }
                         }
+                        self.seen += 1;
+                        k += 1;
                     }
                 }
                 Phase::Recording { .. } => {
+                    let take = (self.record_len - self.record[0].len()).min(n - k);
                     for c in 0..n_ch {
-                        self.record[c].push(block.channels[c][k]);
+                        self.record[c].extend_from_slice(&block.channels[c][k..k + take]);
                     }
+                    self.seen += take as u64;
+                    k += take;
                     self.finish_if_full(out);
                 }
                 Phase::HoldOff { until } => {
-                    if idx + 1 >= until {
+                    let skip = (until.saturating_sub(self.seen) as usize).min(n - k);
+                    self.seen += skip as u64;
+                    k += skip;
+                    if self.seen >= until {
                         self.phase = Phase::Idle;
                     }
                 }

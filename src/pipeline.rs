@@ -152,6 +152,7 @@ impl Analysis {
             fs,
             &cfg.spectra,
             units,
+            retain || roles.force.is_none(),
         );
         Ok(Analysis {
             info: info.clone(),
@@ -259,6 +260,7 @@ impl Analysis {
             self.info.sample_rate,
             &self.cfg.spectra,
             self.averager.spectra().units(),
+            self.retain || self.roles.force.is_none(),
         );
         for (h, r) in self.hits.iter().zip(&self.records) {
             if let (true, Some(r)) = (h.verdict.is_accepted(), r) {

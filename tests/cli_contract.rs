@@ -178,3 +178,59 @@ fn simulate_analyze_compare_round_trip() {
         json_modes(&dir.join("again.json"))
     );
 }
+
+/// Live equals offline: capturing from `--replay` gives the same modes as `analyze` on
+/// the same WAV (same pipeline, blocks of a different size).
+#[test]
+fn replay_capture_equals_analyze() {
+    let dir = temp_dir("replay");
+    let p = |n: &str| dir.join(n).to_str().unwrap().to_string();
+    let (code, _, err) = tapmodes(&["simulate", "--preset", "tm9-arm-braced", "--taps", "6", "--out", &p("b.wav")]);
+    assert_eq!(code, 0, "{err}");
+    let (code, _, err) = tapmodes(&["analyze", &p("b.wav"), "--out", &p("offline.json")]);
+    assert_eq!(code, 0, "{err}");
+    let (code, _, err) = tapmodes(&["capture", "--replay", &p("b.wav"), "--fast", "--hits", "6", "--out", &p("live"), "--variant", "b"]);
+    assert_eq!(code, 0, "{err}");
+    let offline = json_modes(&dir.join("offline.json"));
+    let live = json_modes(&dir.join("live").join("b.json"));
+    assert!(!offline.is_empty());
+    assert_eq!(offline, live);
+}
+
+/// Every field the published schema (schema/run.schema.json) requires is in a real run file.
+#[test]
+fn run_file_has_the_schema_fields() {
+    let schema: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("schema/run.schema.json")).unwrap(),
+    )
+    .unwrap();
+    let dir = temp_dir("schema");
+    let p = |n: &str| dir.join(n).to_str().unwrap().to_string();
+    assert_eq!(tapmodes(&["simulate", "--taps", "3", "--out", &p("s.wav")]).0, 0);
+    assert_eq!(tapmodes(&["analyze", &p("s.wav"), "--out", &p("s.json")]).0, 0);
+    let run: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(dir.join("s.json")).unwrap()).unwrap();
+    fn check(schema: &serde_json::Value, value: &serde_json::Value, at: &str) {
+        if let Some(req) = schema["required"].as_array() {
+            for k in req {
+                let k = k.as_str().unwrap();
+                assert!(value.get(k).is_some(), "{at}: missing required field '{k}'");
+            }
+        }
+        if let (Some(props), Some(obj)) = (schema["properties"].as_object(), value.as_object()) {
+            for (k, sub) in props {
+                if let Some(v) = obj.get(k) {
+                    check(sub, v, &format!("{at}.{k}"));
+                }
+            }
+        }
+        if let (Some(items), Some(arr)) = (schema.get("items"), value.as_array()) {
+            for (i, v) in arr.iter().enumerate() {
+                check(items, v, &format!("{at}[{i}]"));
+            }
+        }
+    }
+    check(&schema, &run, "run");
+    // The recording and the CSV are named relative to the JSON and exist.
+    assert_eq!(run["recording"]["wav"], "s.wav");
+    assert!(dir.join(run["frf_csv"].as_str().unwrap()).exists());
+}

@@ -3,8 +3,8 @@
 //! Each repeat: n hits, each an analytic single-mode accelerance (Ewins 2000, *Modal
 //! Testing*, 2nd ed., ch. 2) plus independent complex white noise per line. Modes come
 //! from the averaged curve, the intervals from the per-hit curves. If the intervals are
-//! right, the true value lies inside about 95 % of them; with 300 repeats the binomial
-//! standard deviation of the coverage is 1.3 %, so [0.90, 0.99] is a +-3.8 sigma / +3 sigma
+//! right, the true value lies inside about 95 % of them; with 200 repeats the binomial
+//! standard deviation of the coverage is 1.5 %, so [0.90, 0.99] is a -3.2 / +2.6 sigma
 //! acceptance band.
 
 use realfft::num_complex::Complex64;
@@ -96,15 +96,15 @@ fn ninety_five_percent_intervals_cover() {
         damping_ratio: 0.01,
         modal_constants: vec![1.0],
     };
-    let o = coverage(&truth, 300, 6, 11);
-    assert!(o.runs >= 295, "runs {}", o.runs);
+    let o = coverage(&truth, 200, 6, 11);
+    assert!(o.runs >= 196, "runs {}", o.runs);
     let fc = o.f_in as f64 / o.runs as f64;
     let zc = o.z_in as f64 / o.runs as f64;
     assert!((0.90..=0.99).contains(&fc), "frequency coverage {fc}");
     assert!((0.90..=0.99).contains(&zc), "damping coverage {zc}");
 }
 
-/// Two variants 0.5 % apart in frequency with 10 hits each are told apart; the same
+/// Two variants 0.08 % apart in frequency with 10 hits each are told apart; the same
 /// variant measured twice is not (Welch test at 5 %).
 #[test]
 fn significance_of_a_variant_difference() {
@@ -139,11 +139,17 @@ fn significance_of_a_variant_difference() {
         let mut modes = find_modes(&freqs, &curve_of(&avg), 1.0, None, &cfg);
         let curves: Vec<Curve> = hits.iter().map(|h| curve_of(h)).collect();
         attach(&mut modes, &freqs, &curves, 1.0, None);
-        modes.remove(0)
+        // Noise can raise a spurious peak where the accelerance is small: take the mode.
+        let i = modes
+            .iter()
+            .position(|m| (m.frequency_hz - f).abs() < 1.0)
+            .expect("the mode");
+        modes.remove(i)
     };
     let a = run(120.0, 1);
-    let b = run(120.6, 2);
+    let b = run(120.1, 2);
     let a2 = run(120.0, 3);
     assert_eq!(difference_significant(&a, &b), Some(true));
     assert_eq!(difference_significant(&a, &a2), Some(false));
 }
+

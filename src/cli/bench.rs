@@ -81,6 +81,7 @@ fn speed(quick: bool) -> Result<String> {
     let mut out = String::from(
         "| file | hits | accepted | analyze time | peak RSS during analyze |\n|---|---|---|---|---|\n",
     );
+    let mut breakdown = String::new();
     let lengths: &[f64] = if quick { &[10.0, 60.0] } else { &[60.0, 600.0] };
     for &secs in lengths {
         let path = dir.join(format!("bench-{secs}.wav"));
@@ -101,6 +102,39 @@ fn speed(quick: bool) -> Result<String> {
             counts = (a.hits().len(), a.accepted());
             std::hint::black_box(modes);
         }
+        // Where the time goes: reading alone, reading plus hit detection.
+        let t0 = Instant::now();
+        let mut src = WavSource::open(&path)?;
+        while src.next_block()?.is_some() {}
+        let read_s = t0.elapsed().as_secs_f64();
+        let t0 = Instant::now();
+        let mut src = WavSource::open(&path)?;
+        let roles = RoleChoice::default().resolve(src.info())?;
+        let mut det = crate::hits::HitDetector::new(
+            src.info(),
+            roles,
+            crate::hits::TriggerConfig {
+                channel: 0,
+                level: crate::hits::TriggerLevel::NoiseMultiple(10.0),
+                pretrigger_s: 0.01,
+                record_s: 1.0,
+                holdoff_s: 0.2,
+            },
+            crate::hits::CheckConfig::default(),
+        );
+        let mut hits = Vec::new();
+        while let Some(b) = src.next_block()? {
+            det.push(&b, &mut hits);
+            hits.clear();
+        }
+        let detect_s = t0.elapsed().as_secs_f64();
+        breakdown += &format!(
+            "- {:.0} min: reading {:.3} s, reading + hit detection {:.3} s, whole analysis {:.3} s\n",
+            secs / 60.0,
+            read_s,
+            detect_s,
+            best
+        );
         out += &format!(
             "| {:.0} min, 2 ch, 48 kHz, 16-bit ({:.1} MB) | {} | {} | {:.3} s (best of 3) | {:.1} MiB |\n",
             secs / 60.0,
@@ -113,7 +147,7 @@ fn speed(quick: bool) -> Result<String> {
         let _ = std::fs::remove_file(&path);
     }
     let _ = std::fs::remove_dir(&dir);
-    Ok(out)
+    Ok(out + "\n" + &breakdown)
 }
 
 fn decoder(quick: bool) -> String {

@@ -9,6 +9,7 @@ pub mod ports;
 pub mod report;
 pub mod simulate;
 pub mod source_args;
+pub mod tui;
 
 use crate::error::Result;
 use clap::{Parser, Subcommand};
@@ -30,6 +31,8 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 pub enum Command {
+    /// The terminal app (the default): live bench view on any source.
+    Tui(Box<tui::TuiArgs>),
     /// Make a recording on the simulated bench (WAV plus the true modes as JSON).
     Simulate(simulate::SimulateArgs),
     /// Find hits and modes in a WAV (or re-analyse a run file) and write the mode list.
@@ -48,6 +51,7 @@ pub enum Command {
 
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
+        Some(Command::Tui(a)) => tui::run(&a),
         Some(Command::Simulate(a)) => simulate::run(&a),
         Some(Command::Analyze(a)) => analyze::run(&a),
         Some(Command::Compare(a)) => compare::run(&a),
@@ -56,9 +60,13 @@ pub fn run(cli: Cli) -> Result<()> {
         Some(Command::Devices) => ports::devices(),
         Some(Command::Bench(a)) => bench::run(&a),
         None => {
-            crate::fail!(
-                "the terminal app is not built yet; try `tapmodes simulate` then `tapmodes analyze`"
-            )
+            // No command: the app on the simulated bench, with every default.
+            #[derive(Parser)]
+            struct Defaults {
+                #[command(flatten)]
+                tui: tui::TuiArgs,
+            }
+            tui::run(&Defaults::parse_from(["tapmodes"]).tui)
         }
     }
 }

@@ -31,7 +31,11 @@ pub fn ports() -> Result<()> {
 /// Print the sound-card inputs.
 #[cfg(feature = "audio")]
 pub fn devices() -> Result<()> {
-    for d in crate::source::audio::input_devices()? {
+    let names = crate::source::audio::input_devices()?;
+    if names.is_empty() {
+        println!("no sound-card inputs found");
+    }
+    for d in names {
         println!("{d}");
     }
     Ok(())

@@ -37,6 +37,9 @@ use serde::{Deserialize, Serialize};
 use std::f64::consts::PI;
 
 const J: Complex64 = Complex64::new(0.0, 1.0);
+/// nalgebra's SVD iterates without limit by default; a bounded count turns a pathological
+/// matrix into a failed fit instead of a hang.
+const SVD_MAX_ITERATIONS: usize = 500;
 
 /// A starting point for one mode (apparent values, as read from the windowed curve).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -174,7 +177,13 @@ pub fn rfp_poles(omega: &[f64], h: &[Complex64], n: usize) -> Option<Vec<Complex
                 p *= xk;
             }
         }
-        let coef = a.svd(true, true).solve(&b, 1e-13).ok()?;
+        if !(a.iter().all(|v| v.is_finite()) && b.iter().all(|v| v.is_finite())) {
+            return None;
+        }
+        let coef = a
+            .try_svd(true, true, 1e-15, SVD_MAX_ITERATIONS)?
+            .solve(&b, 1e-13)
+            .ok()?;
         let den: Vec<Complex64> = (0..n).map(|i| coef[nb + i]).collect();
         // Next weights: 1 / |D(x_k)| (Sanathanan & Koerner 1963).
         for (k, &xk) in x.iter().enumerate() {
@@ -271,15 +280,26 @@ impl Problem<'_> {
     /// Linear coefficients and the residual vector for given poles.
     fn solve(&self, poles: &[Complex64]) -> Option<(DVector<f64>, DVector<f64>)> {
         let mut a = self.basis(poles);
+        if !a.iter().all(|v| v.is_finite()) {
+            return None;
+        }
         let norms: Vec<f64> = (0..a.ncols())
             .map(|c| a.column(c).norm().max(1e-300))
             .collect();
         for (c, nrm) in norms.iter().enumerate() {
             a.column_mut(c).scale_mut(1.0 / nrm);
         }
-        let svd = a.clone().svd(true, true);
-        let smax = svd.singular_values.max();
-        let mut coef = svd.solve(&self.y, 1e-12 * smax).ok()?;
+        // Least squares by QR (Householder), falling back to SVD when R is singular.
+        let qr = a.clone().qr();
+        let qty = qr.q().transpose() * &self.y;
+        let mut coef = match qr.r().solve_upper_triangular(&qty) {
+            Some(c) if c.iter().all(|v| v.is_finite()) => c,
+            _ => {
+                let svd = a.clone().try_svd(true, true, 1e-15, SVD_MAX_ITERATIONS)?;
+                let smax = svd.singular_values.max();
+                svd.solve(&self.y, 1e-12 * smax).ok()?
+            }
+        };
         let r = &self.y - &a * &coef;
         for (c, nrm) in norms.iter().enumerate() {
             coef[c] /= nrm;
@@ -288,6 +308,10 @@ impl Problem<'_> {
     }
 
     fn cost(&self, p: &[f64]) -> Option<(f64, DVector<f64>)> {
+        // Decay rates beyond e^(+-40) of the band half-width are not modes.
+        if !p.iter().all(|v| v.is_finite() && v.abs() < 40.0) {
+            return None;
+        }
         let (_, r) = self.solve(&self.poles(p))?;
         Some((r.norm_squared(), r))
     }
@@ -331,7 +355,7 @@ pub fn fit_band(
             Complex64::new(-z * w, w * (1.0 - z * z).sqrt())
         })
         .collect();
-    let mut starts = vec![seed_poles.clone()];
+    let mut starts = Vec::with_capacity(2);
     if let Some(rfp) = rfp_poles(&omega, &hb, n) {
         // Pair each seed with the nearest stable in-band RFP pole not taken yet.
         let mut pool: Vec<Complex64> = rfp
@@ -351,8 +375,9 @@ pub fn fit_band(
                 None => paired.push(*sp),
             }
         }
-        starts.insert(0, paired);
+        starts.push(paired);
     }
+    starts.push(seed_poles);
     let valid = |poles: &[Complex64]| {
         let ok = poles.iter().all(|s| {
             s.re < 0.0
@@ -375,6 +400,8 @@ pub fn fit_band(
             let poles = prob.poles(&p);
             if valid(&poles) && best.as_ref().is_none_or(|b| cost < b.0) {
                 best = Some((cost, p, it));
+                // The RFP start converged to a valid set: the seeds would only repeat it.
+                break;
             }
         }
     }
@@ -422,7 +449,7 @@ pub fn fit_band(
     })
 }
 
-/// Levenberg-Marquardt on the projected cost with a central-difference Jacobian.
+/// Levenberg-Marquardt on the projected cost with a forward-difference Jacobian.
 /// Returns (parameters, cost, iterations).
 fn levenberg_marquardt(
     prob: &Problem,
@@ -436,15 +463,13 @@ fn levenberg_marquardt(
     while it < max_iterations {
         it += 1;
         let mut jac = DMatrix::<f64>::zeros(r.len(), m);
-        let h = 1e-6;
+        // Forward differences in the scaled parameters.
+        let h = 1e-7;
         for j in 0..m {
             let mut pp = p.clone();
-            let mut pm = p.clone();
             pp[j] += h;
-            pm[j] -= h;
             let (_, rp) = prob.cost(&pp)?;
-            let (_, rm) = prob.cost(&pm)?;
-            jac.set_column(j, &((rp - rm) / (2.0 * h)));
+            jac.set_column(j, &((rp - &r) / h));
         }
         let jtj = jac.transpose() * &jac;
         let g = jac.transpose() * &r;
@@ -454,7 +479,10 @@ fn levenberg_marquardt(
             for d in 0..m {
                 a[(d, d)] += lambda * jtj[(d, d)].max(1e-12);
             }
-            let Ok(step) = a.svd(true, true).solve(&(-&g), 1e-300) else {
+            let step = a
+                .try_svd(true, true, 1e-15, SVD_MAX_ITERATIONS)
+                .and_then(|d| d.solve(&(-&g), 1e-300).ok());
+            let Some(step) = step.filter(|v| v.iter().all(|x| x.is_finite())) else {
                 lambda *= 10.0;
                 continue;
             };

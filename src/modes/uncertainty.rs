@@ -134,6 +134,7 @@ pub fn hit_curves(
                 fs,
                 cfg,
                 ("-".into(), "-".into()),
+                false,
             );
             avg.add(r);
             avg.spectra().curve(basis)

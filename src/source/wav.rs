@@ -13,9 +13,25 @@ use std::path::{Path, PathBuf};
 /// Frames per block read from the file.
 pub const WAV_BLOCK: usize = 8192;
 
+/// Sample layouts read in bulk (the container size equals the sample size); others go
+/// through hound sample by sample.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Bulk {
+    I16,
+    I32,
+    F32,
+}
+
+enum Reader {
+    Hound(hound::WavReader<BufReader<File>>),
+    /// Positioned at the first sample of the data chunk.
+    Bulk(BufReader<File>, Bulk),
+}
+
 pub struct WavSource {
     path: PathBuf,
-    reader: hound::WavReader<BufReader<File>>,
+    reader: Reader,
+    bytes: Vec<u8>,
     info: StreamInfo,
     float: bool,
     frames_total: u64,
@@ -55,7 +71,18 @@ impl WavSource {
             })
             .collect();
         let frames_total = reader.duration() as u64;
+        let bulk = match (spec.sample_format, spec.bits_per_sample) {
+            (hound::SampleFormat::Int, 16) => Some(Bulk::I16),
+            (hound::SampleFormat::Int, 32) => Some(Bulk::I32),
+            (hound::SampleFormat::Float, 32) => Some(Bulk::F32),
+            _ => None,
+        };
+        let reader = match bulk {
+            Some(kind) => Reader::Bulk(reader.into_inner(), kind),
+            None => Reader::Hound(reader),
+        };
         Ok(WavSource {
+            bytes: Vec::new(),
             info: StreamInfo {
                 source: format!("wav {}", path.display()),
                 sample_rate: spec.sample_rate as f64,
@@ -150,8 +177,37 @@ impl Source for WavSource {
         let shown = self.path.display();
         let total = frames * n_ch;
         let mut read = 0usize;
-        if self.float {
-            for s in self.reader.samples::<f32>().take(total) {
+        if let Reader::Bulk(raw, kind) = &mut self.reader {
+            let width = if *kind == Bulk::I16 { 2 } else { 4 };
+            self.bytes.resize(total * width, 0);
+            if let Err(e) = std::io::Read::read_exact(raw, &mut self.bytes) {
+                return Err(if e.kind() == std::io::ErrorKind::UnexpectedEof {
+                    Error::new(format!("'{shown}' ends early: the WAV file is truncated"))
+                } else {
+                    Error::new(format!("cannot read '{shown}': {}", crate::error::describe_io(&e)))
+                });
+            }
+            for (i, b) in self.bytes.chunks_exact(width).enumerate() {
+                let c = i % n_ch;
+                let v = match kind {
+                    Bulk::I16 => i16::from_le_bytes([b[0], b[1]]) as f64,
+                    Bulk::I32 => i32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64,
+                    Bulk::F32 => {
+                        let v = f32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64;
+                        if !v.is_finite() {
+                            crate::fail!(
+                                "'{shown}' holds a sample that is not a finite number (channel {c}, frame {})",
+                                self.next + (i / n_ch) as u64
+                            );
+                        }
+                        v
+                    }
+                };
+                channels[c].push(v * scales[c]);
+            }
+            read = total;
+        } else if let (true, Reader::Hound(reader)) = (self.float, &mut self.reader) {
+            for s in reader.samples::<f32>().take(total) {
                 let v = s.map_err(|e| describe(e, &self.path))? as f64;
                 let c = read % n_ch;
                 if !v.is_finite() {
@@ -163,8 +219,8 @@ impl Source for WavSource {
                 channels[c].push(v * scales[c]);
                 read += 1;
             }
-        } else {
-            for s in self.reader.samples::<i32>().take(total) {
+        } else if let Reader::Hound(reader) = &mut self.reader {
+            for s in reader.samples::<i32>().take(total) {
                 let v = s.map_err(|e| describe(e, &self.path))? as f64;
                 let c = read % n_ch;
                 channels[c].push(v * scales[c]);

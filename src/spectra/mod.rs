@@ -166,7 +166,9 @@ pub struct SpectralAverager {
     force_response: Option<CrossAccumulator>,
     base_response: Option<CrossAccumulator>,
     response_auto: Vec<f64>,
-    spread: Spread,
+    /// Hit-to-hit spread of the response level (a logarithm per line per hit, so only
+    /// kept when someone will look at it).
+    spread: Option<Spread>,
     count: usize,
     units: (String, String),
     bufs: [Vec<Complex64>; 3],
@@ -181,6 +183,7 @@ impl SpectralAverager {
         fs: f64,
         cfg: &SpectraConfig,
         units: (String, String),
+        track_spread: bool,
     ) -> Self {
         let windows = Windows::new(&cfg.windows, record_len, trigger_index, fs);
         let fft = Transformer::new(record_len * cfg.pad.max(1), fs);
@@ -194,7 +197,7 @@ impl SpectralAverager {
             force_response: roles.force.map(|_| CrossAccumulator::new(lines)),
             base_response: roles.base.map(|_| CrossAccumulator::new(lines)),
             response_auto: vec![0.0; lines],
-            spread: Spread::new(lines),
+            spread: track_spread.then(|| Spread::new(lines)),
             count: 0,
             bufs: std::array::from_fn(|_| vec![Complex64::new(0.0, 0.0); lines]),
             roles,
@@ -229,12 +232,14 @@ impl SpectralAverager {
         for (s, x) in self.response_auto.iter_mut().zip(rx.iter()) {
             *s += x.norm_sqr();
         }
-        let factors = &self.factors;
-        self.spread.add(
-            rx.iter()
-                .zip(factors)
-                .map(|(x, c)| 10.0 * (x.norm_sqr() * c).max(1e-300).log10()),
-        );
+        if let Some(spread) = self.spread.as_mut() {
+            let factors = &self.factors;
+            spread.add(
+                rx.iter()
+                    .zip(factors)
+                    .map(|(x, c)| 10.0 * (x.norm_sqr() * c).max(1e-300).log10()),
+            );
+        }
         self.count += 1;
     }
 
@@ -264,7 +269,10 @@ impl SpectralAverager {
                 .zip(&self.factors)
                 .map(|(g, c)| g * c / n)
                 .collect(),
-            spread_db: self.spread.std_dev(),
+            spread_db: self
+                .spread
+                .as_ref()
+                .map_or_else(|| vec![0.0; self.fft.lines()], Spread::std_dev),
             force_unit: self.units.0.clone(),
             response_unit: self.units.1.clone(),
         }

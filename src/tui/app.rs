@@ -211,6 +211,7 @@ impl App {
                 match source.next_block() {
                     Ok(Some(b)) => {
                         updates.extend(engine.push(&b));
+                        updates.extend(engine.autosave());
                         n += 1;
                     }
                     Ok(None) => {
@@ -356,15 +357,20 @@ pub fn drive<B: Backend>(
     mut stop: impl FnMut(&App, bool) -> bool,
 ) -> Result<()> {
     let mut dirty = true;
+    // Keys and new analysis results are drawn at once; the live trace waits for the cap.
+    let mut urgent = false;
     let mut last_draw = Instant::now() - MIN_FRAME;
     loop {
         let mut drew = false;
-        if dirty && last_draw.elapsed() >= MIN_FRAME || last_draw.elapsed() >= IDLE_FRAME {
+        if dirty && (urgent || last_draw.elapsed() >= MIN_FRAME)
+            || last_draw.elapsed() >= IDLE_FRAME
+        {
             terminal
                 .draw(|f| view(&app.model, f))
                 .map_err(|e| Error::new(format!("cannot draw the screen: {e}")))?;
             last_draw = Instant::now();
             dirty = false;
+            urgent = false;
             drew = true;
         }
         if app.model.quit || stop(app, drew) {
@@ -380,8 +386,16 @@ pub fn drive<B: Backend>(
         };
         match inbox.recv_timeout(wait.max(Duration::from_millis(1))) {
             Ok(m) => {
+                let is_urgent = |m: &Inbox| {
+                    matches!(
+                        m,
+                        Inbox::Key(_) | Inbox::Resize | Inbox::Update(Update::Analysis(_))
+                    )
+                };
+                urgent |= is_urgent(&m);
                 app.inbox_msg(m);
                 while let Ok(m) = inbox.try_recv() {
+                    urgent |= is_urgent(&m);
                     app.inbox_msg(m);
                 }
                 dirty = true;

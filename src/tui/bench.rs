@@ -136,7 +136,7 @@ fn latency() -> Result<String> {
     let (min, med, max, _) = stats(&mut samples_ms);
     Ok(format!(
         "(a) tap-to-screen latency (block completing a hit -> first drawn 160x48 frame showing it, \
-         incl. averaging, autosave of JSON+CSV+WAV flush and the 30 fps frame cap): \
+         through the acquisition thread, the analysis worker (averaging, modes) and the UI loop): \
          {n} hits, min {min:.1} ms, median {med:.1} ms, max {max:.1} ms; frames showed the hit: {shown_ok}/{n}"
     ))
 }

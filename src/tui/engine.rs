@@ -239,6 +239,8 @@ pub struct Engine {
     last_flush: u64,
     /// Stream position (the analysis skips blocks while disarmed).
     position: u64,
+    /// New hits are waiting to be saved.
+    autosave_due: bool,
 }
 
 /// Turn a variant label into a file name stem: letters, digits, '-', '_' and '.'.
@@ -319,6 +321,7 @@ impl Engine {
             link: None,
             last_flush: 0,
             position: 0,
+            autosave_due: false,
         })
     }
 
@@ -363,9 +366,10 @@ impl Engine {
             let new = self.analysis.push(block);
             if new > 0 {
                 self.dirty = true;
-                // Every new hit is saved as it lands: the WAV is flushed and the run files
-                // written, so nothing is lost if the app or the machine stops.
-                out.extend(self.save(true));
+                // Every new hit is saved as it lands (see `autosave`): the WAV is flushed
+                // and the run files written, so nothing is lost if the app stops. The
+                // screen gets the hit first.
+                self.autosave_due = true;
                 out.push(Update::Analysis(Arc::new(self.snapshot())));
             }
         }
@@ -374,6 +378,16 @@ impl Engine {
             self.flush_recording(&mut out);
         }
         out
+    }
+
+    /// Save the run files if hits arrived since the last save (call after handing the
+    /// hit's snapshot to the screen).
+    pub fn autosave(&mut self) -> Vec<Update> {
+        if std::mem::take(&mut self.autosave_due) {
+            self.save(true)
+        } else {
+            Vec::new()
+        }
     }
 
     fn flush_recording(&mut self, out: &mut Vec<Update>) {
@@ -711,6 +725,9 @@ pub fn spawn_worker(
                     match f {
                         Feed::Block(b) => {
                             for u in engine.push(&b) {
+                                send(u);
+                            }
+                            for u in engine.autosave() {
                                 send(u);
                             }
                             fed = true;

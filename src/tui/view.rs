@@ -306,7 +306,7 @@ fn draw_signal(m: &Model, f: &mut Frame, area: Rect) {
     .split(inner);
     for (t, r) in traces.iter().zip(rows.iter()) {
         let thr = (t.channel == live.trigger_channel).then_some(th).flatten();
-        let label = format!("{} {} (last {:.0} s)", t.name, t.unit, t.envelope.span_s);
+        let label = format!("{} {} (last {:.1} s)", t.name, t.unit, t.envelope.span_s);
         draw_envelope(f, *r, &t.envelope, thr, &label, None);
     }
 }
@@ -322,11 +322,20 @@ fn draw_envelope(
     mark_at: Option<f64>,
 ) {
     let n = env.max.len().max(1) as f64;
+    // Keep idle noise to about a third of the height: the range is at least four times
+    // the mean half-width of the min/max columns.
+    let half_width = env
+        .min
+        .iter()
+        .zip(&env.max)
+        .map(|(a, b)| 0.5 * (b - a))
+        .sum::<f64>()
+        / n;
     let peak = env
         .peak()
         .max(threshold.map_or(0.0, |t| 1.3 * t))
         .max(1e-12);
-    let r = 1.1 * peak;
+    let r = (1.1 * peak).max(4.0 * half_width);
     let label = if area.width as usize >= label.len() + 10 {
         format!("{label}  +-{}", fmt_sig(r))
     } else {
@@ -495,7 +504,7 @@ fn nearest(freqs: &[f64], f: f64) -> Option<usize> {
 
 fn curve_title(m: &Model, c: Option<&CurveSnap>) -> Line<'static> {
     let basis = c.map_or(m.basis, |c| c.basis);
-    let unit = c.map_or(String::new(), |c| format!(" dB re 1 {}", c.unit));
+    let unit = c.map_or(String::new(), |c| format!("dB re 1 {}, ", c.unit));
     let n = m.analysis.as_ref().map_or(0, |a| a.accepted);
     let others: Vec<&str> = m
         .header
@@ -510,7 +519,7 @@ fn curve_title(m: &Model, c: Option<&CurveSnap>) -> Line<'static> {
         .collect();
     let mut spans = vec![
         Span::styled(format!(" {} ", basis.label()), bold()),
-        Span::raw(format!("{unit}, {n} taps averaged ")),
+        Span::raw(format!("{unit}{n} taps averaged ")),
     ];
     if !others.is_empty() {
         spans.push(Span::styled(format!("(v: {}) ", others.join(", ")), dim()));
@@ -750,7 +759,7 @@ fn draw_taps(m: &Model, f: &mut Frame, area: Rect) {
         f.render_widget(Paragraph::new("no taps yet").style(dim()), inner);
         return;
     }
-    let wide = inner.width >= 48;
+    let wide = inner.width >= 40;
     // Rows for the table; the last line shows the selected tap's reason when narrow.
     let reason_h = u16::from(!wide && inner.height >= 4);
     let [table_area, reason_area] =

@@ -1,0 +1,44 @@
+//! `tapmodes tui` (and `tapmodes` alone): the terminal app on any source.
+
+use super::args::{AnalysisArgs, ChannelArgs};
+use super::source_args::SourceArgs;
+use crate::error::Result;
+use clap::Args;
+use std::path::PathBuf;
+
+#[derive(Debug, Args)]
+pub struct TuiArgs {
+    #[command(flatten)]
+    pub source: SourceArgs,
+    /// Folder the run files are saved in (created if missing).
+    #[arg(long, default_value = "runs", value_name = "DIR")]
+    pub out: PathBuf,
+    /// Variant label to start with (names the saved files).
+    #[arg(long, default_value = "variant", value_name = "LABEL")]
+    pub variant: String,
+    /// Simulated bench only: fire a tap every SECONDS (toggle in the app).
+    #[arg(long, value_name = "SECONDS")]
+    pub auto_tap: Option<f64>,
+    /// Saved runs to overlay and compare with from the start.
+    #[arg(long, value_name = "RUN.json")]
+    pub compare: Vec<PathBuf>,
+    #[command(flatten)]
+    pub channels: ChannelArgs,
+    #[command(flatten)]
+    pub analysis: AnalysisArgs,
+}
+
+pub fn run(a: &TuiArgs) -> Result<()> {
+    let config = a.analysis.config()?;
+    let opened = a.source.open(&a.channels, false)?;
+    crate::tui::run(crate::tui::Launch {
+        source: opened.source,
+        roles: opened.roles,
+        config,
+        out_dir: a.out.clone(),
+        variant: a.variant.clone(),
+        auto_tap_s: a.auto_tap.filter(|s| *s > 0.0),
+        demo: opened.demo,
+        compare_with: a.compare.clone(),
+    })
+}
