@@ -75,6 +75,9 @@ impl HitSummary {
     }
 }
 
+/// Accepted records a streaming analysis keeps for the hit-to-hit uncertainty.
+pub const SPREAD_RECORDS: usize = 32;
+
 /// A running analysis of one stream.
 pub struct Analysis {
     info: StreamInfo,
@@ -200,7 +203,11 @@ impl Analysis {
                 self.averager.add(&hit.record);
             }
             self.hits.push(HitSummary::of(&hit));
-            self.records.push(self.retain.then(|| hit.record.clone()));
+            // Streaming analysis keeps the first few accepted records for the per-hit
+            // uncertainty (memory stays bounded); retained analyses keep every record.
+            let keep = self.retain
+                || (hit.verdict.is_accepted() && self.kept_for_spread() < SPREAD_RECORDS);
+            self.records.push(keep.then(|| hit.record.clone()));
             self.last = Some(hit);
         }
         n
@@ -298,21 +305,76 @@ impl Analysis {
         })
     }
 
-    /// Modes on the current basis (empty before the first accepted hit).
+    fn kept_for_spread(&self) -> usize {
+        self.records.iter().filter(|r| r.is_some()).count()
+    }
+
+    /// Accepted records still in memory (all of them when retained).
+    pub fn accepted_records(&self) -> Vec<&[Vec<f64>]> {
+        self.hits
+            .iter()
+            .zip(&self.records)
+            .filter(|(h, _)| h.verdict.is_accepted())
+            .filter_map(|(_, r)| r.as_deref())
+            .collect()
+    }
+
+    /// Modes on the current basis (empty before the first accepted hit), with their
+    /// hit-to-hit uncertainty, and ring-down damping for response-only runs.
     pub fn modes(&self, spectra: &Spectra) -> Vec<Mode> {
         if spectra.hits == 0 {
             return Vec::new();
         }
-        match spectra.curve(self.basis()) {
-            Some(curve) => find_modes(
+        let basis = self.basis();
+        let Some(curve) = spectra.curve(basis) else {
+            return Vec::new();
+        };
+        let mut modes = find_modes(
+            &spectra.freqs,
+            &curve,
+            spectra.resolution_hz,
+            spectra.tau_s,
+            &self.cfg.modes,
+        );
+        let records = self.accepted_records();
+        if records.len() >= 2 {
+            let d = &self.detector;
+            let curves = crate::modes::uncertainty::hit_curves(
+                &records,
+                self.roles,
+                d.record_len(),
+                d.pretrigger_len(),
+                self.info.sample_rate,
+                &self.cfg.spectra,
+                basis,
+            );
+            crate::modes::uncertainty::attach(
+                &mut modes,
                 &spectra.freqs,
-                &curve,
+                &curves,
                 spectra.resolution_hz,
                 spectra.tau_s,
-                &self.cfg.modes,
-            ),
-            None => Vec::new(),
+            );
         }
+        if basis == Basis::Autospectrum && !records.is_empty() {
+            let responses: Vec<&[f64]> = records
+                .iter()
+                .map(|r| r[self.roles.response].as_slice())
+                .collect();
+            crate::modes::ringdown::attach_ringdown(
+                &mut modes,
+                &responses,
+                self.info.sample_rate,
+                &crate::modes::ringdown::RingdownConfig::default(),
+            );
+        }
+        modes
+    }
+
+    /// The soft mount read from the transmissibility, when there is a base channel.
+    pub fn mount(&self, spectra: &Spectra) -> Option<crate::modes::softmount::MountFit> {
+        let curve = spectra.curve(Basis::Transmissibility)?;
+        crate::modes::softmount::fit_mount(&spectra.freqs, &curve, None, spectra.tau_s)
     }
 }
 

@@ -185,11 +185,30 @@ fn simulate_analyze_compare_round_trip() {
 fn replay_capture_equals_analyze() {
     let dir = temp_dir("replay");
     let p = |n: &str| dir.join(n).to_str().unwrap().to_string();
-    let (code, _, err) = tapmodes(&["simulate", "--preset", "tm9-arm-braced", "--taps", "6", "--out", &p("b.wav")]);
+    let (code, _, err) = tapmodes(&[
+        "simulate",
+        "--preset",
+        "tm9-arm-braced",
+        "--taps",
+        "6",
+        "--out",
+        &p("b.wav"),
+    ]);
     assert_eq!(code, 0, "{err}");
     let (code, _, err) = tapmodes(&["analyze", &p("b.wav"), "--out", &p("offline.json")]);
     assert_eq!(code, 0, "{err}");
-    let (code, _, err) = tapmodes(&["capture", "--replay", &p("b.wav"), "--fast", "--hits", "6", "--out", &p("live"), "--variant", "b"]);
+    let (code, _, err) = tapmodes(&[
+        "capture",
+        "--replay",
+        &p("b.wav"),
+        "--fast",
+        "--hits",
+        "6",
+        "--out",
+        &p("live"),
+        "--variant",
+        "b",
+    ]);
     assert_eq!(code, 0, "{err}");
     let offline = json_modes(&dir.join("offline.json"));
     let live = json_modes(&dir.join("live").join("b.json"));
@@ -201,14 +220,24 @@ fn replay_capture_equals_analyze() {
 #[test]
 fn run_file_has_the_schema_fields() {
     let schema: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("schema/run.schema.json")).unwrap(),
+        &std::fs::read_to_string(
+            std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("schema/run.schema.json"),
+        )
+        .unwrap(),
     )
     .unwrap();
     let dir = temp_dir("schema");
     let p = |n: &str| dir.join(n).to_str().unwrap().to_string();
-    assert_eq!(tapmodes(&["simulate", "--taps", "3", "--out", &p("s.wav")]).0, 0);
-    assert_eq!(tapmodes(&["analyze", &p("s.wav"), "--out", &p("s.json")]).0, 0);
-    let run: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(dir.join("s.json")).unwrap()).unwrap();
+    assert_eq!(
+        tapmodes(&["simulate", "--taps", "3", "--out", &p("s.wav")]).0,
+        0
+    );
+    assert_eq!(
+        tapmodes(&["analyze", &p("s.wav"), "--out", &p("s.json")]).0,
+        0
+    );
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("s.json")).unwrap()).unwrap();
     fn check(schema: &serde_json::Value, value: &serde_json::Value, at: &str) {
         if let Some(req) = schema["required"].as_array() {
             for k in req {

@@ -152,4 +152,3 @@ fn significance_of_a_variant_difference() {
     assert_eq!(difference_significant(&a, &b), Some(true));
     assert_eq!(difference_significant(&a, &a2), Some(false));
 }
-

@@ -21,6 +21,10 @@ pub enum BenchKind {
     Speed,
     /// Serial decoder throughput, binary and text forms.
     Decoder,
+    /// Method accuracy against simulator truth, beside the Cramer-Rao bound.
+    Accuracy,
+    /// Terminal app latency, frame rate and idle CPU.
+    Tui,
 }
 
 #[derive(Debug, Args)]
@@ -36,6 +40,8 @@ pub fn run(a: &BenchArgs) -> Result<()> {
     match a.kind {
         BenchKind::Speed => print!("{}", speed(a.quick)?),
         BenchKind::Decoder => print!("{}", decoder(a.quick)),
+        BenchKind::Accuracy => print!("{}", crate::bench::accuracy::accuracy_report(a.quick)),
+        BenchKind::Tui => print!("{}", crate::tui::bench::bench_report()),
     }
     Ok(())
 }

@@ -198,12 +198,10 @@ fn link_note(feed: &LiveFeed, analysis: &Analysis) -> String {
         .link()
         .filter(|l| l.packets_lost + l.packets_corrupt + l.junk_lines > 0)
     {
-        {
-            s += &format!(
-                "; link: {} lost, {} corrupt, {} resyncs, {} junk lines",
-                l.packets_lost, l.packets_corrupt, l.resyncs, l.junk_lines
-            );
-        }
+        s += &format!(
+            "; link: {} lost, {} corrupt, {} resyncs, {} junk lines",
+            l.packets_lost, l.packets_corrupt, l.resyncs, l.junk_lines
+        );
     }
     let over = feed.overrun_frames();
     if over > 0 {

@@ -6,13 +6,20 @@ use crate::pipeline::HitSummary;
 /// The mode table: frequency, damping in percent, Q, coherence and flags.
 pub fn mode_table(modes: &[Mode]) -> String {
     let mut s = format!(
-        "{:>3} {:>10} {:>9} {:>7} {:>6} {:>7}  {}\n",
-        "#", "f Hz", "damping %", "Q", "coh", "prom dB", "flags"
+        "{:>3} {:>10} {:>9} {:>7} {:>6} {:>7} {:>16}  {}\n",
+        "#", "f Hz", "damping %", "Q", "coh", "prom dB", "95% f / z", "flags"
     );
     for (i, m) in modes.iter().enumerate() {
         let flags: Vec<&str> = m.flags.iter().map(|f| f.label()).collect();
+        let ci = m.uncertainty.as_ref().map_or("-".to_string(), |u| {
+            let hw = 0.5 * (u.frequency_hz.high - u.frequency_hz.low);
+            let zw = u.damping_ratio.as_ref().map_or("-".to_string(), |z| {
+                format!("{:.2}", 50.0 * (z.high - z.low))
+            });
+            format!("+-{hw:.2} / +-{zw}")
+        });
         s += &format!(
-            "{:>3} {:>10.2} {:>9} {:>7} {:>6} {:>7.1}  {}\n",
+            "{:>3} {:>10.2} {:>9} {:>7} {:>6} {:>7.1} {:>16}  {}\n",
             i + 1,
             m.frequency_hz,
             m.damping_ratio
@@ -20,6 +27,7 @@ pub fn mode_table(modes: &[Mode]) -> String {
             m.q.map_or("-".into(), |q| format!("{q:.1}")),
             m.coherence.map_or("-".into(), |c| format!("{c:.3}")),
             m.prominence_db,
+            ci,
             flags.join(", ")
         );
     }

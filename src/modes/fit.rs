@@ -676,12 +676,12 @@ pub fn refine_modes(
 pub const SPLIT_MIN_ERROR: f64 = 0.02;
 
 /// Store a fit on a mode and report it when the half-power value is unreliable.
+/// Report the fit's frequency and damping: it accounts for neighbouring modes and
+/// residuals, where half-power reads one peak in isolation (it stays in
+/// `half_power_estimate` as the cross-check). The caller only offers fits that explain the
+/// band (correlation at least the configured minimum).
 fn adopt(mode: &mut Mode, fm: FittedMode) {
-    let unreliable = mode
-        .flags
-        .iter()
-        .any(|f| matches!(f, Flag::FewLines | Flag::Overlap | Flag::NoHalfPower));
-    if unreliable {
+    {
         mode.frequency_hz = fm.frequency_hz;
         mode.window_damping = fm.window_damping;
         mode.flags.retain(|f| *f != Flag::WindowDominated);

@@ -53,6 +53,9 @@ impl Flag {
 pub const MIN_LINES: f64 = 4.0;
 /// Coherence below this at a peak is flagged: common practice, no source.
 pub const LOW_COHERENCE: f64 = 0.9;
+/// Peaks with coherence below this are taken for noise and not reported: common practice,
+/// no source.
+pub const NOISE_COHERENCE: f64 = 0.5;
 
 /// The half-power band of a mode.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -133,7 +136,7 @@ impl Default for ModeConfig {
         ModeConfig {
             band_hz: (20.0, f64::INFINITY),
             min_prominence_db: 6.0,
-            min_above_floor_db: 10.0,
+            min_above_floor_db: 6.0,
             max_modes: 12,
             acceleration_response: true,
         }
@@ -159,7 +162,31 @@ pub fn find_modes(
             20.0 * m.max(1e-300).log10()
         })
         .collect();
-    let picked = peaks::pick(freqs, &db, cfg);
+    // Peaks where the output is mostly noise (coherence under NOISE_COHERENCE) are noise
+    // spikes, not modes: left out.
+    let picked: Vec<peaks::Peak> = peaks::pick(freqs, &db, cfg)
+        .into_iter()
+        .filter(|p| {
+            curve
+                .coherence
+                .as_ref()
+                .is_none_or(|c| c[p.index] >= NOISE_COHERENCE)
+        })
+        .collect();
+    // With an exponential window every structural peak is at least as wide as the window's
+    // own half-power band, 1/(pi tau) Hz (its pole moved by 1/tau); a peak under 0.8 of that
+    // is a noise or leakage spike, not a mode.
+    let picked: Vec<peaks::Peak> = match tau_s {
+        Some(tau) => picked
+            .into_iter()
+            .filter(|p| {
+                let r = halfpower::refine_peak(freqs, &db, p.index);
+                halfpower::half_power(freqs, &db, p.index, r.level_db)
+                    .map_or(true, |b| b.1 - b.0 >= 0.8 / (PI * tau))
+            })
+            .collect(),
+        None => picked,
+    };
     let peak_freqs: Vec<f64> = picked.iter().map(|p| freqs[p.index]).collect();
     let mut seeds = Vec::with_capacity(picked.len());
     let mut modes: Vec<Mode> = picked

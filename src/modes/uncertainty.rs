@@ -142,6 +142,9 @@ pub fn hit_curves(
         .collect()
 }
 
+/// One hit's (frequency, damping) of one mode, `None` where the estimator failed.
+type HitEstimate = Option<(f64, Option<f64>)>;
+
 /// One hit's (frequency, damping) for every mode of `modes`, by the mode's own method.
 fn estimate_hit(
     freqs: &[f64],
@@ -150,7 +153,7 @@ fn estimate_hit(
     tau_s: Option<f64>,
     modes: &[Mode],
     cfg: &FitConfig,
-) -> Vec<Option<(f64, Option<f64>)>> {
+) -> Vec<HitEstimate> {
     let mut out = vec![None; modes.len()];
     let h = complex_curve(curve);
     // Fitted modes: refit each band of the averaged fit, seeded by the averaged poles.
@@ -245,7 +248,7 @@ pub fn attach(
     tau_s: Option<f64>,
 ) {
     let cfg = FitConfig::default();
-    let per_hit: Vec<Vec<Option<(f64, Option<f64>)>>> = hit_curves
+    let per_hit: Vec<Vec<HitEstimate>> = hit_curves
         .iter()
         .map(|c| estimate_hit(freqs, c, resolution_hz, tau_s, modes, &cfg))
         .collect();

@@ -17,6 +17,10 @@ pub struct MatchedMode {
     pub damping_change: Option<f64>,
     /// (f_b / f_a)^2: the stiffness ratio at equal mass (k = m w^2).
     pub stiffness_ratio: f64,
+    /// Whether the frequency change exceeds the hit-to-hit spread (Welch t-test at 95 %),
+    /// when both runs carry an uncertainty.
+    pub frequency_change_significant: Option<bool>,
+    pub damping_change_significant: Option<bool>,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -145,6 +149,10 @@ pub fn compare(runs: &[(String, RunFile)], tolerance: f64) -> Comparison {
                         variant_damping: b.damping_ratio,
                         damping_change: a.damping_ratio.zip(b.damping_ratio).map(|(x, y)| y - x),
                         stiffness_ratio: r * r,
+                        frequency_change_significant:
+                            crate::modes::uncertainty::difference_significant(a, b),
+                        damping_change_significant:
+                            crate::modes::uncertainty::damping_difference_significant(a, b),
                     }
                 })
                 .collect();
@@ -184,12 +192,24 @@ pub fn render_table(c: &Comparison) -> String {
     for v in &c.variants {
         s += &format!("{} -> {}\n", c.baseline, v.label);
         s += &format!(
-            "  {:>10} {:>10} {:>8} {:>8} {:>8} {:>9} {:>9}\n",
-            "f_base Hz", "f_var Hz", "df %", "z_base %", "z_var %", "dz pts", "k ratio"
+            "  {:>10} {:>10} {:>8} {:>8} {:>8} {:>9} {:>9}  {}\n",
+            "f_base Hz",
+            "f_var Hz",
+            "df %",
+            "z_base %",
+            "z_var %",
+            "dz pts",
+            "k ratio",
+            "beyond spread"
         );
         for m in &v.matched {
+            let sig = |x: Option<bool>| match x {
+                Some(true) => "yes",
+                Some(false) => "no",
+                None => "?",
+            };
             s += &format!(
-                "  {:>10.1} {:>10.1} {:>+8.2} {:>8} {:>8} {:>9} {:>9.3}\n",
+                "  {:>10.1} {:>10.1} {:>+8.2} {:>8} {:>8} {:>9} {:>9.3}  f {} / z {}\n",
                 m.baseline_hz,
                 m.variant_hz,
                 m.frequency_change_pct,
@@ -197,7 +217,9 @@ pub fn render_table(c: &Comparison) -> String {
                 pct(m.variant_damping),
                 m.damping_change
                     .map_or("-".into(), |d| format!("{:+.2}", 100.0 * d)),
-                m.stiffness_ratio
+                m.stiffness_ratio,
+                sig(m.frequency_change_significant),
+                sig(m.damping_change_significant)
             );
         }
         let list = |v: &[f64]| {
@@ -220,6 +242,7 @@ pub fn render_table(c: &Comparison) -> String {
             s += &format!("  warning: {w}\n");
         }
         s += "  k ratio = (f_var/f_base)^2, the stiffness ratio at equal mass (k ~ m f^2 if masses differ)\n";
+        s += "  beyond spread: the change exceeds the hit-to-hit 95 % spread (Welch t-test); ? = no spread stored\n";
     }
     s
 }

@@ -78,6 +78,9 @@ pub struct RunFile {
     pub modes: Vec<Mode>,
     /// Path of the FRF CSV relative to this JSON file.
     pub frf_csv: Option<String>,
+    /// The soft mount fitted to the base-to-response transmissibility (base channel only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub mount: Option<crate::modes::softmount::MountFit>,
     /// Things the reader of these numbers should know.
     pub notes: Vec<String>,
 }
@@ -144,6 +147,11 @@ impl RunFile {
             hits: a.hits().to_vec(),
             modes: modes.to_vec(),
             frf_csv: None,
+            mount: if spectra.hits > 0 {
+                a.mount(spectra)
+            } else {
+                None
+            },
             notes,
         }
     }

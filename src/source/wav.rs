@@ -184,7 +184,10 @@ impl Source for WavSource {
                 return Err(if e.kind() == std::io::ErrorKind::UnexpectedEof {
                     Error::new(format!("'{shown}' ends early: the WAV file is truncated"))
                 } else {
-                    Error::new(format!("cannot read '{shown}': {}", crate::error::describe_io(&e)))
+                    Error::new(format!(
+                        "cannot read '{shown}': {}",
+                        crate::error::describe_io(&e)
+                    ))
                 });
             }
             for (i, b) in self.bytes.chunks_exact(width).enumerate() {

@@ -9,7 +9,7 @@ use crate::error::Result;
 use crate::rng::Rng;
 use crate::signal::{Block, ChannelInfo, Role, StreamInfo};
 use crate::source::Source;
-use model::{Impact, ModalResponder, STANDARD_GRAVITY, SimMode};
+use model::{Impact, ModalResponder, Mount, RigidBody, STANDARD_GRAVITY, SimMode};
 use serde::{Deserialize, Serialize};
 
 /// Hammer tip hardness: a harder tip gives a shorter pulse and excites a wider band.
@@ -95,6 +95,12 @@ pub struct BenchPlan {
     /// Sensors; the force sensor (if any) first.
     pub sensors: Vec<SensorPlan>,
     pub hum: Option<HumPlan>,
+    /// A soft-mounted part, if one of the response points sits on a mount.
+    #[serde(default)]
+    pub mount: Option<Mount>,
+    /// Rigid-body mass when the part rests free; `None` when it is clamped.
+    #[serde(default)]
+    pub rigid: Option<RigidBody>,
     pub seed: u64,
 }
 
@@ -144,13 +150,19 @@ pub struct Simulator {
 
 impl Simulator {
     pub fn new(plan: BenchPlan, seconds: Option<f64>, auto_taps: bool) -> Self {
-        let responder = ModalResponder::new(plan.modes.clone(), plan.sample_rate);
         let info = plan.stream_info();
         let n_resp = plan
             .sensors
             .iter()
             .filter(|s| s.role != Role::Force)
             .count();
+        let responder = ModalResponder::new(
+            &plan.modes,
+            plan.mount.as_ref(),
+            plan.rigid,
+            n_resp,
+            plan.sample_rate,
+        );
         Simulator {
             rng: Rng::new(plan.seed),
             next_auto_s: plan.hammer.first_s,

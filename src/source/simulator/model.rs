@@ -72,13 +72,61 @@ impl Impact {
     }
 }
 
-/// Exact acceleration response of a set of modes to a train of impacts, sample by sample.
+/// A part on a soft mount: its acceleration is the base point's acceleration through the
+/// base-excitation transmissibility `T(s) = (2 z wm s + wm^2) / (s^2 + 2 z wm s + wm^2)`
+/// (Rao, *Mechanical Vibrations*, 5th ed., sec. 3.6, base excitation; section from memory).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Mount {
+    /// Response point (index among the non-force sensors) the mount sits on.
+    pub base_point: usize,
+    /// Response point on the mounted part.
+    pub mounted_point: usize,
+    pub frequency_hz: f64,
+    pub damping_ratio: f64,
+}
+
+/// The part rests free (on foam): its rigid-body motion adds a constant accelerance 1/M to
+/// every point not on a mount (Ewins 2000, ch. 2, free-free mass line; from memory).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct RigidBody {
+    pub mass_kg: f64,
+}
+
+impl Mount {
+    fn pole(&self) -> Complex64 {
+        SimMode {
+            frequency_hz: self.frequency_hz,
+            damping_ratio: self.damping_ratio,
+            modal_constants: Vec::new(),
+        }
+        .pole()
+    }
+
+    fn numerator(&self, s: Complex64) -> Complex64 {
+        let wm = 2.0 * std::f64::consts::PI * self.frequency_hz;
+        s * (2.0 * self.damping_ratio * wm) + wm * wm
+    }
+
+    /// The transmissibility at complex frequency s.
+    pub fn transmissibility(&self, s: Complex64) -> Complex64 {
+        let q = self.pole();
+        self.numerator(s) / ((s - q) * (s - q.conj()))
+    }
+}
+
+/// Exact acceleration response to a train of impacts, sample by sample, for any transfer
+/// function written in pole-residue form `G(s) = D + sum_p R_p/(s - p) + conj(R_p)/(s - conj p)`:
+/// `y(t) = D f(t) + sum_p 2 Re(R_p I_p(t))`. A mode with receptance numerator `A` has
+/// accelerance residue `A p^2 / (p - conj p)` and direct term `A`; a mounted point's
+/// residues follow from `T(s) G_base(s)` by partial fractions.
 #[derive(Debug, Clone)]
 pub struct ModalResponder {
-    modes: Vec<SimMode>,
     poles: Vec<Complex64>,
+    /// `residues[pole][point]`.
+    residues: Vec<Vec<Complex64>>,
+    direct: Vec<f64>,
     step: Vec<Complex64>,
-    /// Per mode: the decaying contribution of all impacts already finished.
+    /// Per pole: the decaying contribution of all impacts already finished.
     settled: Vec<Complex64>,
     /// Impacts still in progress (or not started).
     pending: Vec<Impact>,
@@ -86,14 +134,66 @@ pub struct ModalResponder {
 }
 
 impl ModalResponder {
-    pub fn new(modes: Vec<SimMode>, sample_rate: f64) -> Self {
+    pub fn new(
+        modes: &[SimMode],
+        mount: Option<&Mount>,
+        rigid: Option<RigidBody>,
+        points: usize,
+        sample_rate: f64,
+    ) -> Self {
         let dt = 1.0 / sample_rate;
-        let poles: Vec<_> = modes.iter().map(SimMode::pole).collect();
+        let mut poles = Vec::new();
+        let mut residues = Vec::new();
+        let rigid_term = rigid.map_or(0.0, |r| 1.0 / r.mass_kg);
+        let mut direct: Vec<f64> = (0..points)
+            .map(|c| {
+                if mount.is_some_and(|m| m.mounted_point == c) {
+                    0.0
+                } else {
+                    rigid_term
+                }
+            })
+            .collect();
+        let constant = |m: &SimMode, c: usize| m.modal_constants.get(c).copied().unwrap_or(0.0);
+        for m in modes {
+            let p = m.pole();
+            let mut row = vec![Complex64::new(0.0, 0.0); points];
+            for (c, r) in row.iter_mut().enumerate() {
+                if mount.is_some_and(|mt| mt.mounted_point == c) {
+                    continue;
+                }
+                *r = constant(m, c) * p * p / (p - p.conj());
+                direct[c] += constant(m, c);
+            }
+            if let Some(mt) = mount {
+                let base = constant(m, mt.base_point) * p * p / (p - p.conj());
+                row[mt.mounted_point] = mt.transmissibility(p) * base;
+            }
+            poles.push(p);
+            residues.push(row);
+        }
+        if let Some(mt) = mount {
+            let q = mt.pole();
+            let g_base: Complex64 = modes
+                .iter()
+                .map(|m| {
+                    let wr = 2.0 * std::f64::consts::PI * m.frequency_hz;
+                    constant(m, mt.base_point) * q * q
+                        / (q * q + q * (2.0 * m.damping_ratio * wr) + wr * wr)
+                })
+                .sum::<Complex64>()
+                + rigid_term;
+            let mut row = vec![Complex64::new(0.0, 0.0); points];
+            row[mt.mounted_point] = g_base * mt.numerator(q) / (q - q.conj());
+            poles.push(q);
+            residues.push(row);
+        }
         let step = poles.iter().map(|s| (s * dt).exp()).collect();
-        let settled = vec![Complex64::new(0.0, 0.0); modes.len()];
+        let settled = vec![Complex64::new(0.0, 0.0); poles.len()];
         ModalResponder {
-            modes,
             poles,
+            residues,
+            direct,
             step,
             settled,
             pending: Vec::new(),
@@ -105,8 +205,15 @@ impl ModalResponder {
         self.pending.push(impact);
     }
 
-    pub fn modes(&self) -> &[SimMode] {
-        &self.modes
+    /// The transfer function (acceleration per force) at point c and frequency f in Hz.
+    pub fn transfer(&self, c: usize, f: f64) -> Complex64 {
+        let s = Complex64::new(0.0, 2.0 * std::f64::consts::PI * f);
+        self.poles
+            .iter()
+            .zip(&self.residues)
+            .map(|(p, r)| r[c] / (s - p) + r[c].conj() / (s - p.conj()))
+            .sum::<Complex64>()
+            + self.direct[c]
     }
 
     /// Force (N) and acceleration (m/s^2) at each response point for sample index n.
@@ -130,16 +237,16 @@ impl ModalResponder {
             }
         }
         let force: f64 = self.pending.iter().map(|imp| imp.force(t)).sum();
-        accel_out.iter_mut().for_each(|a| *a = 0.0);
-        for (r, mode) in self.modes.iter().enumerate() {
-            let s = self.poles[r];
-            let mut conv = self.settled[r];
+        for (a, d) in accel_out.iter_mut().zip(&self.direct) {
+            *a = d * force;
+        }
+        for (k, &p) in self.poles.iter().enumerate() {
+            let mut conv = self.settled[k];
             for imp in &self.pending {
-                conv += imp.convolution(s, t);
+                conv += imp.convolution(p, t);
             }
-            let dynamic = (s * s * conv).im / s.im;
-            for (a, &k) in accel_out.iter_mut().zip(&mode.modal_constants) {
-                *a += k * (force + dynamic);
+            for (a, r) in accel_out.iter_mut().zip(&self.residues[k]) {
+                *a += 2.0 * (r * conv).re;
             }
         }
         force
@@ -177,7 +284,7 @@ mod tests {
             peak_n: 2.0,
             width_s: 0.0008,
         };
-        let mut resp = ModalResponder::new(vec![mode.clone()], fs);
+        let mut resp = ModalResponder::new(std::slice::from_ref(&mode), None, None, 1, fs);
         resp.add_impact(imp);
         let n_total = 2000;
         let mut exact = vec![0.0; n_total];
@@ -219,6 +326,52 @@ mod tests {
                 "n={n}: numeric {acc} vs closed form {}",
                 exact[n]
             );
+        }
+    }
+}
+
+#[cfg(test)]
+mod mount_tests {
+    use super::*;
+
+    /// The mounted point's transfer function is exactly T(jw) times the base point's.
+    #[test]
+    fn mounted_point_is_base_times_transmissibility() {
+        let modes = vec![
+            SimMode {
+                frequency_hz: 310.0,
+                damping_ratio: 0.02,
+                modal_constants: vec![4.0, 0.0],
+            },
+            SimMode {
+                frequency_hz: 720.0,
+                damping_ratio: 0.03,
+                modal_constants: vec![3.0, 0.0],
+            },
+        ];
+        let mount = Mount {
+            base_point: 0,
+            mounted_point: 1,
+            frequency_hz: 90.0,
+            damping_ratio: 0.1,
+        };
+        let r = ModalResponder::new(
+            &modes,
+            Some(&mount),
+            Some(RigidBody { mass_kg: 0.5 }),
+            2,
+            8000.0,
+        );
+        for f in [20.0, 90.0, 300.0, 1000.0] {
+            let s = Complex64::new(0.0, 2.0 * std::f64::consts::PI * f);
+            let want = mount.transmissibility(s) * r.transfer(0, f);
+            let got = r.transfer(1, f);
+            assert!(
+                (got - want).norm() < 1e-9 * want.norm().max(1e-12),
+                "{f} Hz: {got} vs {want}"
+            );
+            let free = accelerance(&modes, 0, f) + 2.0;
+            assert!((r.transfer(0, f) - free).norm() < 1e-9 * free.norm());
         }
     }
 }
