@@ -117,6 +117,11 @@ pub struct ModeConfig {
     pub min_prominence_db: f64,
     /// ... and this far above the estimated noise floor (dB).
     pub min_above_floor_db: f64,
+    /// The same for curves with a coherence (FRF, transmissibility): there the "floor" is
+    /// mostly the neighbours' mass line, not noise, and noise peaks are caught by
+    /// `NOISE_COHERENCE` instead (common practice, no source).
+    #[serde(default = "coherent_floor_db")]
+    pub min_above_floor_coherent_db: f64,
     pub max_modes: usize,
     /// The response is an acceleration (accelerometer, contact microphone): peaks are read
     /// on the curve divided by frequency, i.e. on mobility. For a viscous SDOF the mobility
@@ -131,12 +136,17 @@ fn yes() -> bool {
     true
 }
 
+fn coherent_floor_db() -> f64 {
+    6.0
+}
+
 impl Default for ModeConfig {
     fn default() -> Self {
         ModeConfig {
             band_hz: (20.0, f64::INFINITY),
             min_prominence_db: 6.0,
-            min_above_floor_db: 6.0,
+            min_above_floor_db: 10.0,
+            min_above_floor_coherent_db: coherent_floor_db(),
             max_modes: 12,
             acceleration_response: true,
         }
@@ -164,7 +174,15 @@ pub fn find_modes(
         .collect();
     // Peaks where the output is mostly noise (coherence under NOISE_COHERENCE) are noise
     // spikes, not modes: left out.
-    let picked: Vec<peaks::Peak> = peaks::pick(freqs, &db, cfg)
+    let pick_cfg = ModeConfig {
+        min_above_floor_db: if curve.coherence.is_some() {
+            cfg.min_above_floor_coherent_db
+        } else {
+            cfg.min_above_floor_db
+        },
+        ..cfg.clone()
+    };
+    let picked: Vec<peaks::Peak> = peaks::pick(freqs, &db, &pick_cfg)
         .into_iter()
         .filter(|p| {
             curve
