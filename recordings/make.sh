@@ -11,7 +11,7 @@ rm -f "$out"/*.wav "$out"/*.json "$out"/*.csv
 # variant label | preset | seed | extra analysis options
 while read -r label preset seed extra; do
   [ -z "$label" ] && continue
-  "$bin" capture --demo "$preset" --seed "$seed" --fast --hits 8 --out "$out" --variant "$label" $extra >/dev/null 2>&1
+  "$bin" capture --demo "$preset" --seed "$seed" --fast --hits 5 --out "$out" --variant "$label" $extra >/dev/null 2>&1
   "$bin" simulate --preset "$preset" --seed "$seed" --taps 0 --out "$out/.truth-tmp.wav" >/dev/null
   # Keep only the truth (the modes the simulator used); the capture above holds the recording.
   mv "$out/.truth-tmp.truth.json" "$out/$label.truth.json"

@@ -329,12 +329,16 @@ impl Analysis {
         let Some(curve) = spectra.curve(basis) else {
             return Vec::new();
         };
+        let cfg = crate::modes::ModeConfig {
+            averages: spectra.hits,
+            ..self.cfg.modes.clone()
+        };
         let mut modes = find_modes(
             &spectra.freqs,
             &curve,
             spectra.resolution_hz,
             spectra.tau_s,
-            &self.cfg.modes,
+            &cfg,
         );
         let records = self.accepted_records();
         if records.len() >= 2 {

@@ -13,9 +13,6 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, Ordering};
 
-/// How a recording written by this tool is encoded (stored in the run file).
-pub const RECORDING_ENCODING: &str = "float32 in channel units";
-
 #[derive(Debug, Args)]
 pub struct CaptureArgs {
     #[command(flatten)]
@@ -77,6 +74,7 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
     let info = opened.source.info().clone();
     let mut analysis = Analysis::new(&info, opened.roles, cfg, false)?;
     let mut rec = RecordingWriter::create(&wav, &info)?;
+    let encoding = rec.encoding();
     let variant = Variant {
         label: a.variant.clone(),
         note: a.note.clone(),
@@ -127,12 +125,7 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
                 if accepted_now {
                     // Save as each accepted hit lands: nothing accepted is lost later.
                     rec.flush()?;
-                    write_run_files(
-                        &analysis,
-                        variant.clone(),
-                        &json,
-                        Some((&wav, RECORDING_ENCODING)),
-                    )?;
+                    write_run_files(&analysis, variant.clone(), &json, Some((&wav, encoding)))?;
                     eprintln!(
                         "  {} of {} accepted hits saved to {}",
                         analysis.accepted(),
@@ -143,15 +136,11 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
             }
         }
     }
-    // Everything the thread already delivered belongs in the recording.
-    for f in feed.drain() {
-        if let Feed::Block(b) = f {
-            rec.append(&b)?;
-        }
-    }
+    // The recording ends where the analysis ended, so re-analysing the run file
+    // reproduces it; blocks still queued behind the stop are not part of the run.
     drop(feed);
     rec.finish()?;
-    let run = write_run_files(&analysis, variant, &json, Some((&wav, RECORDING_ENCODING)))?;
+    let run = write_run_files(&analysis, variant, &json, Some((&wav, encoding)))?;
     eprintln!(
         "{} hits, {} accepted{}{}",
         run.hits_total,

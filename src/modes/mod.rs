@@ -57,6 +57,18 @@ pub const LOW_COHERENCE: f64 = 0.9;
 /// no source.
 pub const NOISE_COHERENCE: f64 = 0.5;
 
+/// The coherence a pure-noise line exceeds with probability 1e-4 after `n` averages:
+/// for independent Gaussian records `P(coh > x) = (1 - x)^(n - 1)` (Carter, Knapp &
+/// Nuttall 1973, IEEE Trans. Audio Electroacoustics 21(4); from memory), so
+/// `x = 1 - 1e-4^(1/(n-1))`; never below `NOISE_COHERENCE`. With few hits, chance
+/// coherence is high and only clearly coherent peaks count as modes.
+pub fn noise_coherence(n: usize) -> f64 {
+    if n < 2 {
+        return NOISE_COHERENCE;
+    }
+    (1.0 - 1e-4f64.powf(1.0 / (n - 1) as f64)).max(NOISE_COHERENCE)
+}
+
 /// The half-power band of a mode.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct HalfPowerBand {
@@ -122,6 +134,10 @@ pub struct ModeConfig {
     /// `NOISE_COHERENCE` instead (common practice, no source).
     #[serde(default = "coherent_floor_db")]
     pub min_above_floor_coherent_db: f64,
+    /// Records averaged into the curve (0 = unknown); sets the coherence a noise line can
+    /// reach by chance (see `noise_coherence`).
+    #[serde(default)]
+    pub averages: usize,
     pub max_modes: usize,
     /// The response is an acceleration (accelerometer, contact microphone): peaks are read
     /// on the curve divided by frequency, i.e. on mobility. For a viscous SDOF the mobility
@@ -147,6 +163,7 @@ impl Default for ModeConfig {
             min_prominence_db: 6.0,
             min_above_floor_db: 10.0,
             min_above_floor_coherent_db: coherent_floor_db(),
+            averages: 0,
             max_modes: 12,
             acceleration_response: true,
         }
@@ -188,7 +205,7 @@ pub fn find_modes(
             curve
                 .coherence
                 .as_ref()
-                .is_none_or(|c| c[p.index] >= NOISE_COHERENCE)
+                .is_none_or(|c| c[p.index] >= noise_coherence(cfg.averages))
         })
         .collect();
     // With an exponential window every structural peak is at least as wide as the window's

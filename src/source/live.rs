@@ -48,8 +48,12 @@ pub struct LiveFeed {
 pub const MAX_QUEUED_BLOCKS: u64 = 500;
 
 impl LiveFeed {
-    /// Start `source` on its own thread.
+    /// Start `source` on its own thread. A source that paces itself (real hardware, real-
+    /// time replay) never waits for the consumer: a backlog over `MAX_QUEUED_BLOCKS` is
+    /// dropped and counted. A source running as fast as possible (`paced() == false`) waits
+    /// instead, since nothing is lost by waiting.
     pub fn start(mut source: Box<dyn Source>) -> LiveFeed {
+        let lossless = !source.paced();
         let info = source.info().clone();
         let (tx, rx) = mpsc::channel();
         let (req_tx, req_rx) = mpsc::channel::<Request>();
@@ -74,6 +78,14 @@ impl LiveFeed {
                 }
                 match next {
                     Ok(Some(block)) => {
+                        while lossless
+                            && h.queued_blocks.load(Ordering::Relaxed) >= MAX_QUEUED_BLOCKS
+                        {
+                            if s.load(Ordering::Relaxed) {
+                                return;
+                            }
+                            std::thread::sleep(std::time::Duration::from_millis(1));
+                        }
                         if h.queued_blocks.load(Ordering::Relaxed) >= MAX_QUEUED_BLOCKS {
                             h.overrun_frames
                                 .fetch_add(block.len() as u64, Ordering::Relaxed);

@@ -27,6 +27,11 @@ pub trait Source: Send {
     fn next_block(&mut self) -> Result<Option<Block>>;
     /// Fire a simulated tap; real sources ignore it.
     fn tap(&mut self) {}
+    /// True when the source delivers in real time (hardware, paced replay or simulation);
+    /// false when it runs as fast as the consumer can take it.
+    fn paced(&self) -> bool {
+        true
+    }
     /// Link-quality counters, for sources that have them.
     fn link_counters(&self) -> Option<LinkCounters> {
         None

@@ -166,6 +166,10 @@ impl Source for WavSource {
         &self.info
     }
 
+    fn paced(&self) -> bool {
+        self.pace.is_some()
+    }
+
     fn next_block(&mut self) -> Result<Option<Block>> {
         if self.next >= self.frames_total {
             return Ok(None);

@@ -27,7 +27,8 @@ pub const HIT_BUCKETS: usize = 320;
 /// How much of the force pulse the last-hit panel shows after the trigger.
 pub const FORCE_VIEW_S: f64 = 0.02;
 /// How the recording is encoded (written into the run file).
-pub const WAV_ENCODING: &str = "float32 in channel units";
+/// Encoding stored when no recorder is open (it failed); otherwise the recorder's own.
+pub const WAV_ENCODING: &str = crate::run::recording::FLOAT_ENCODING;
 /// The recording is flushed at least this often (stream seconds) besides every hit.
 const FLUSH_EVERY_S: f64 = 5.0;
 
@@ -522,7 +523,11 @@ impl Engine {
             ),
         };
         let wav = self.wav_path.clone();
-        match write_run_files(&self.analysis, variant, &json, Some((&wav, WAV_ENCODING))) {
+        let encoding = self
+            .recorder
+            .as_ref()
+            .map_or(WAV_ENCODING, |r| r.encoding());
+        match write_run_files(&self.analysis, variant, &json, Some((&wav, encoding))) {
             Ok(run) => {
                 self.wrote_json = true;
                 self.dirty = false;

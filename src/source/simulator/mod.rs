@@ -253,6 +253,10 @@ impl Source for Simulator {
         self.tap_now();
     }
 
+    fn paced(&self) -> bool {
+        self.pace.is_some()
+    }
+
     fn next_block(&mut self) -> Result<Option<Block>> {
         if let Some(t0) = self.pace {
             // Real time: wait until the wall clock has caught up with the stream.
