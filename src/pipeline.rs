@@ -76,7 +76,7 @@ impl HitSummary {
 }
 
 /// Accepted records a streaming analysis keeps for the hit-to-hit uncertainty.
-pub const SPREAD_RECORDS: usize = 32;
+pub const SPREAD_RECORDS: usize = 16;
 
 /// A running analysis of one stream.
 pub struct Analysis {

@@ -126,9 +126,21 @@ pub struct Transformer {
     dt: f64,
 }
 
+/// FFT plans are costly to make and immutable once made: one per size for the process.
+fn plan(n_fft: usize) -> Arc<dyn RealToComplex<f64>> {
+    use std::sync::{Mutex, OnceLock};
+    static PLANNER: OnceLock<Mutex<RealFftPlanner<f64>>> = OnceLock::new();
+    let planner = PLANNER.get_or_init(|| Mutex::new(RealFftPlanner::new()));
+    match planner.lock() {
+        Ok(mut p) => p.plan_fft_forward(n_fft),
+        // A panic elsewhere while planning leaves the planner usable for a fresh one.
+        Err(_) => RealFftPlanner::<f64>::new().plan_fft_forward(n_fft),
+    }
+}
+
 impl Transformer {
     pub fn new(n_fft: usize, fs: f64) -> Self {
-        let fft = RealFftPlanner::<f64>::new().plan_fft_forward(n_fft);
+        let fft = plan(n_fft);
         Transformer {
             input: fft.make_input_vec(),
             scratch: fft.make_scratch_vec(),
