@@ -548,13 +548,9 @@ mod tests {
     use crate::source::simulator::Simulator;
     use crate::source::simulator::presets::preset;
 
-    fn verdicts(no_force: bool, double_chance: f64) -> Vec<Verdict> {
-        let mut plan = preset("tm9-arm-solid", 8).unwrap();
-        plan.hammer.double_hit_chance = double_chance;
-        if no_force {
-            plan.sensors.remove(0);
-        }
-        let mut sim = Simulator::new(plan, Some(14.0), true);
+    /// All hits of a simulated run with the default trigger on the force (or response).
+    fn detect(plan: crate::source::simulator::BenchPlan, seconds: f64) -> Vec<Hit> {
+        let mut sim = Simulator::new(plan, Some(seconds), true);
         let info = sim.info().clone();
         let roles = RoleChoice::default().resolve(&info).unwrap();
         let trig = TriggerConfig {
@@ -569,7 +565,16 @@ mod tests {
         while let Some(b) = sim.next_block().unwrap() {
             d.push(&b, &mut hits);
         }
-        hits.iter().map(|h| h.verdict).collect()
+        hits
+    }
+
+    fn verdicts(no_force: bool, double_chance: f64) -> Vec<Verdict> {
+        let mut plan = preset("tm9-arm-solid", 8).unwrap();
+        plan.hammer.double_hit_chance = double_chance;
+        if no_force {
+            plan.sensors.remove(0);
+        }
+        detect(plan, 14.0).iter().map(|h| h.verdict).collect()
     }
 
     #[test]
@@ -597,21 +602,7 @@ mod tests {
     fn clipping_is_overload() {
         let mut plan = preset("tm9-arm-solid", 8).unwrap();
         plan.hammer.peak_n = 60.0;
-        let mut sim = Simulator::new(plan, Some(5.0), true);
-        let info = sim.info().clone();
-        let roles = RoleChoice::default().resolve(&info).unwrap();
-        let trig = TriggerConfig {
-            channel: 0,
-            level: TriggerLevel::NoiseMultiple(10.0),
-            pretrigger_s: 0.01,
-            record_s: 1.0,
-            holdoff_s: 0.2,
-        };
-        let mut d = HitDetector::new(&info, roles, trig, CheckConfig::default());
-        let mut hits = Vec::new();
-        while let Some(b) = sim.next_block().unwrap() {
-            d.push(&b, &mut hits);
-        }
+        let hits = detect(plan, 5.0);
         assert!(!hits.is_empty());
         assert!(
             hits.iter().all(|h| h.verdict == Verdict::Overload),
