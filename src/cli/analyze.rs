@@ -30,6 +30,10 @@ pub struct AnalyzeArgs {
     /// Also print every hit with its verdict.
     #[arg(long)]
     pub hits: bool,
+    /// With a base channel: the mount's transmissibility in dB at HZ or over LO:HI (the
+    /// motors' excitation band, say), measured and from the fitted mount model.
+    #[arg(long, value_name = "HZ|LO:HI", value_parser = parse_freq_or_band)]
+    pub isolation: Option<(f64, f64)>,
     #[command(flatten)]
     pub channels: ChannelArgs,
     #[command(flatten)]
@@ -79,7 +83,54 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
             },
         )
     };
-    finish(&analysis, variant, &out, &wav, a.hits)
+    finish(&analysis, variant, &out, &wav, a.hits, a.isolation)
+}
+
+fn parse_freq_or_band(s: &str) -> std::result::Result<(f64, f64), String> {
+    let num = |t: &str| {
+        t.trim()
+            .parse::<f64>()
+            .ok()
+            .filter(|v| v.is_finite() && *v > 0.0)
+            .ok_or_else(|| format!("'{t}' is not a frequency in Hz"))
+    };
+    match s.split_once(':') {
+        Some((a, b)) => {
+            let (lo, hi) = (num(a)?, num(b)?);
+            if lo >= hi {
+                return Err(format!("the band {s} is empty (LO must be below HI)"));
+            }
+            Ok((lo, hi))
+        }
+        None => num(s).map(|f| (f, f)),
+    }
+}
+
+/// Measured and modelled transmissibility at a frequency or over a band.
+fn isolation(analysis: &Analysis, band: (f64, f64)) -> Result<crate::run::Isolation> {
+    use crate::modes::softmount::{isolation_band_db, isolation_db};
+    let spectra = analysis.spectra();
+    let Some(curve) = spectra.curve(crate::spectra::Basis::Transmissibility) else {
+        crate::fail!("--isolation needs a base channel (give --base-channel)");
+    };
+    let point = band.0 == band.1;
+    let measured = if point {
+        isolation_db(&spectra.freqs, &curve, band.0)
+    } else {
+        isolation_band_db(&spectra.freqs, &curve, band)
+    };
+    let model = analysis.mount(&spectra).map(|m| {
+        if point {
+            m.model_db(band.0)
+        } else {
+            m.model_band_db(band)
+        }
+    });
+    Ok(crate::run::Isolation {
+        band_hz: band,
+        measured_db: measured,
+        model_db: model,
+    })
 }
 
 /// Re-run a saved run: same recording, same settings, same operator verdicts.
@@ -130,6 +181,7 @@ fn finish(
     out: &Path,
     wav: &Path,
     show_hits: bool,
+    isolation_band: Option<(f64, f64)>,
 ) -> Result<()> {
     let fs = analysis.info().sample_rate;
     let hits = analysis.hits();
@@ -144,7 +196,28 @@ fn finish(
     } else {
         "counts"
     };
-    let run = write_run_files(analysis, variant, out, Some((wav, encoding)))?;
+    let iso = isolation_band.map(|b| isolation(analysis, b)).transpose()?;
+    let mut run = write_run_files(analysis, variant, out, Some((wav, encoding)))?;
+    if let Some(m) = &run.mount {
+        println!(
+            "mount (from the transmissibility): {:.1} Hz, damping {:.1} %, isolates above {:.1} Hz",
+            m.natural_frequency_hz,
+            100.0 * m.damping_ratio,
+            m.isolation_onset_hz()
+        );
+    }
+    if let Some(i) = iso {
+        let db = |v: Option<f64>| v.map_or("-".to_string(), |v| format!("{v:+.1} dB"));
+        println!(
+            "transmissibility at {:.0}-{:.0} Hz: measured {}, mount model {}",
+            i.band_hz.0,
+            i.band_hz.1,
+            db(i.measured_db),
+            db(i.model_db)
+        );
+        run.isolation = Some(i);
+        run.save(out)?;
+    }
     if show_hits {
         print!("{}", report::hit_lines(hits, fs));
     }

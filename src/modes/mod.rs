@@ -57,16 +57,17 @@ pub const LOW_COHERENCE: f64 = 0.9;
 /// no source.
 pub const NOISE_COHERENCE: f64 = 0.5;
 
-/// The coherence a pure-noise line exceeds with probability 1e-4 after `n` averages:
+/// The coherence a pure-noise line exceeds with probability 1e-3 after `n` averages:
 /// for independent Gaussian records `P(coh > x) = (1 - x)^(n - 1)` (Carter, Knapp &
 /// Nuttall 1973, IEEE Trans. Audio Electroacoustics 21(4); from memory), so
-/// `x = 1 - 1e-4^(1/(n-1))`; never below `NOISE_COHERENCE`. With few hits, chance
-/// coherence is high and only clearly coherent peaks count as modes.
+/// `x = 1 - 1e-3^(1/(n-1))`, kept within [`NOISE_COHERENCE`, 0.95] (with two or three hits
+/// the bound would also reject real modes). With few hits, chance coherence is high and
+/// only clearly coherent peaks count as modes.
 pub fn noise_coherence(n: usize) -> f64 {
     if n < 2 {
         return NOISE_COHERENCE;
     }
-    (1.0 - 1e-4f64.powf(1.0 / (n - 1) as f64)).max(NOISE_COHERENCE)
+    (1.0 - 1e-3f64.powf(1.0 / (n - 1) as f64)).clamp(NOISE_COHERENCE, 0.95)
 }
 
 /// The half-power band of a mode.

@@ -81,8 +81,21 @@ pub struct RunFile {
     /// The soft mount fitted to the base-to-response transmissibility (base channel only).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub mount: Option<crate::modes::softmount::MountFit>,
+    /// Isolation of the mount where the user asked for it (transmissibility in dB).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub isolation: Option<Isolation>,
     /// Things the reader of these numbers should know.
     pub notes: Vec<String>,
+}
+
+/// Transmissibility in dB at a frequency or over a band (negative = isolation).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Isolation {
+    pub band_hz: (f64, f64),
+    /// Measured: |T| at the frequency, or 10 log10(mean |T|^2) over the band.
+    pub measured_db: Option<f64>,
+    /// The fitted mount model over the same band.
+    pub model_db: Option<f64>,
 }
 
 impl RunFile {
@@ -152,6 +165,7 @@ impl RunFile {
             } else {
                 None
             },
+            isolation: None,
             notes,
         }
     }
