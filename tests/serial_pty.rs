@@ -156,6 +156,7 @@ fn binary_form_with_corrupt_and_dropped_packets() {
     let _dev = device(master, chunks, None);
     let dir = temp_dir("pty-binary");
     let (code, _, stderr) = capture(&port, &dir, &[]);
+    eprintln!("injected: {dropped} packets dropped, {corrupted} corrupted\n{stderr}");
     assert_eq!(code, 0, "{stderr}");
     assert!(
         stderr.contains("lost") && stderr.contains("corrupt"),
@@ -181,6 +182,7 @@ fn disconnect_keeps_accepted_hits() {
     let _dev = device(master, chunks, Some(cut));
     let dir = temp_dir("pty-unplug");
     let (code, _, stderr) = capture(&port, &dir, &[]);
+    eprintln!("{stderr}");
     assert_ne!(code, 0, "{stderr}");
     assert!(stderr.contains("saved"), "{stderr}");
     let (accepted, _) = accepted_modes(&dir);
@@ -199,6 +201,7 @@ fn garbage_or_wrong_baud_is_diagnosed() {
     let _dev = device(master, noise, None);
     let dir = temp_dir("pty-garbage");
     let (code, _, stderr) = capture(&port, &dir, &[]);
+    eprintln!("{stderr}");
     assert_ne!(code, 0);
     assert!(!stderr.contains("panicked"), "{stderr}");
     assert!(stderr.contains("baud"), "{stderr}");
