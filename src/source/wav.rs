@@ -33,7 +33,6 @@ pub struct WavSource {
     reader: Reader,
     bytes: Vec<u8>,
     info: StreamInfo,
-    float: bool,
     frames_total: u64,
     next: u64,
     block: usize,
@@ -90,7 +89,6 @@ impl WavSource {
             },
             path: path.to_path_buf(),
             reader,
-            float,
             frames_total,
             next: 0,
             block: WAV_BLOCK,
@@ -213,20 +211,8 @@ impl Source for WavSource {
                 channels[c].push(v * scales[c]);
             }
             read = total;
-        } else if let (true, Reader::Hound(reader)) = (self.float, &mut self.reader) {
-            for s in reader.samples::<f32>().take(total) {
-                let v = s.map_err(|e| describe(e, &self.path))? as f64;
-                let c = read % n_ch;
-                if !v.is_finite() {
-                    crate::fail!(
-                        "'{shown}' holds a sample that is not a finite number (channel {c}, frame {})",
-                        self.next + (read / n_ch) as u64
-                    );
-                }
-                channels[c].push(v * scales[c]);
-                read += 1;
-            }
         } else if let Reader::Hound(reader) = &mut self.reader {
+            // Only integer layouts other than 16/32-bit get here (32-bit float is bulk).
             for s in reader.samples::<i32>().take(total) {
                 let v = s.map_err(|e| describe(e, &self.path))? as f64;
                 let c = read % n_ch;
