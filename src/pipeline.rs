@@ -90,6 +90,9 @@ pub struct Analysis {
     records: Vec<Option<Vec<Vec<f64>>>>,
     retain: bool,
     last: Option<Hit>,
+    /// Stream ranges `[start, end)` in samples not searched for taps (the operator had
+    /// disarmed the trigger); stored in the run file and honoured on re-analysis.
+    disarmed: Vec<(u64, u64)>,
 }
 
 impl Analysis {
@@ -167,6 +170,7 @@ impl Analysis {
             records: Vec::new(),
             retain,
             last: None,
+            disarmed: Vec::new(),
         })
     }
 
@@ -193,10 +197,78 @@ impl Analysis {
         self.averager.count()
     }
 
-    /// Feed one block; returns how many new hits it completed.
+    /// Feed one block; returns how many new hits it completed. Parts of the block inside a
+    /// disarmed range (see `set_disarmed`) are skipped as `push_disarmed` would.
     pub fn push(&mut self, block: &Block) -> usize {
+        let (b0, b1) = (block.start, block.start + block.len() as u64);
+        if !self.disarmed.iter().any(|&(a, b)| a < b1 && b > b0) {
+            return self.push_armed(block);
+        }
+        let mut cuts: Vec<u64> = vec![b0, b1];
+        for &(a, b) in &self.disarmed {
+            cuts.extend([a, b].into_iter().filter(|&c| c > b0 && c < b1));
+        }
+        cuts.sort_unstable();
+        cuts.dedup();
+        let mut n = 0;
+        for w in cuts.windows(2) {
+            let part = Block {
+                start: w[0],
+                channels: (block.channels.iter())
+                    .map(|c| c[(w[0] - b0) as usize..(w[1] - b0) as usize].to_vec())
+                    .collect(),
+            };
+            if self.disarmed.iter().any(|&(a, b)| a <= w[0] && w[1] <= b) {
+                let mut found = Vec::new();
+                self.detector.pause_until(w[1], &mut found);
+                n += self.take_hits(found);
+            } else {
+                n += self.push_armed(&part);
+            }
+        }
+        n
+    }
+
+    /// A block seen while the operator had the trigger disarmed: recorded in the run as a
+    /// disarmed range, not searched for taps.
+    pub fn push_disarmed(&mut self, block: &Block) -> usize {
+        let (a, b) = (block.start, block.start + block.len() as u64);
+        match self.disarmed.last_mut() {
+            Some(last) if last.1 == a => last.1 = b,
+            _ => self.disarmed.push((a, b)),
+        }
+        let mut found = Vec::new();
+        self.detector.pause_until(b, &mut found);
+        self.take_hits(found)
+    }
+
+    /// Disarmed ranges to honour (re-analysis of a run).
+    pub fn set_disarmed(&mut self, ranges: Vec<(u64, u64)>) {
+        self.disarmed = ranges;
+    }
+
+    pub fn disarmed(&self) -> &[(u64, u64)] {
+        &self.disarmed
+    }
+
+    fn push_armed(&mut self, block: &Block) -> usize {
         let mut found = Vec::new();
         self.detector.push(block, &mut found);
+        for quiet in self.detector.take_idle() {
+            self.averager.add_background(&quiet);
+        }
+        self.take_hits(found)
+    }
+
+    /// The end of the stream: a record still being taken becomes a hit cut short (every
+    /// trigger gets a verdict). Returns how many hits that added.
+    pub fn finish(&mut self) -> usize {
+        let mut found = Vec::new();
+        self.detector.finish(&mut found);
+        self.take_hits(found)
+    }
+
+    fn take_hits(&mut self, found: Vec<Hit>) -> usize {
         let n = found.len();
         for hit in found {
             if hit.verdict.is_accepted() {
@@ -205,10 +277,13 @@ impl Analysis {
             self.hits.push(HitSummary::of(&hit));
             // Streaming analysis keeps the first few accepted records for the per-hit
             // uncertainty (memory stays bounded); retained analyses keep every record.
-            let keep = self.retain
-                || (hit.verdict.is_accepted() && self.kept_for_spread() < SPREAD_RECORDS);
+            let keep = hit.verdict.has_record()
+                && (self.retain
+                    || (hit.verdict.is_accepted() && self.kept_for_spread() < SPREAD_RECORDS));
             self.records.push(keep.then(|| hit.record.clone()));
-            self.last = Some(hit);
+            if hit.verdict.has_record() {
+                self.last = Some(hit);
+            }
         }
         n
     }
@@ -274,6 +349,7 @@ impl Analysis {
                 avg.add(r);
             }
         }
+        avg.take_background(&mut self.averager);
         self.averager = avg;
     }
 
@@ -390,9 +466,18 @@ pub fn analyse_source(
     cfg: AnalysisConfig,
     retain: bool,
 ) -> Result<Analysis> {
-    let mut analysis = Analysis::new(&source.info().clone(), roles, cfg, retain)?;
+    let analysis = Analysis::new(&source.info().clone(), roles, cfg, retain)?;
+    drain_into(source, analysis)
+}
+
+/// Drain a source through an analysis already set up (e.g. with disarmed ranges).
+pub fn drain_into(
+    source: &mut dyn crate::source::Source,
+    mut analysis: Analysis,
+) -> Result<Analysis> {
     while let Some(block) = source.next_block()? {
         analysis.push(&block);
     }
+    analysis.finish();
     Ok(analysis)
 }

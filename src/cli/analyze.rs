@@ -170,7 +170,9 @@ fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
         estimator: s.estimator,
         basis: Some(s.basis),
     };
-    let mut analysis = analyse_source(&mut src, s.roles, cfg, true)?;
+    let mut analysis = Analysis::new(&src.info().clone(), s.roles, cfg, true)?;
+    analysis.set_disarmed(saved.disarmed.clone());
+    let mut analysis = crate::pipeline::drain_into(&mut src, analysis)?;
     analysis.apply_verdicts(&saved.hits);
     Ok((analysis, wav, saved.variant))
 }

@@ -139,6 +139,16 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
     // The recording ends where the analysis ended, so re-analysing the run file
     // reproduces it; blocks still queued behind the stop are not part of the run.
     drop(feed);
+    analysis.finish();
+    for h in &analysis.hits()[seen..] {
+        eprintln!(
+            "hit {} at {:.2} s: {} ({})",
+            h.number,
+            h.trigger_sample as f64 / fs,
+            h.verdict.label(),
+            h.reason
+        );
+    }
     rec.finish()?;
     let run = write_run_files(&analysis, variant, &json, Some((&wav, encoding)))?;
     eprintln!(

@@ -86,6 +86,10 @@ pub struct RunFile {
     pub isolation: Option<Isolation>,
     /// Things the reader of these numbers should know.
     pub notes: Vec<String>,
+    /// Stream ranges `[start, end)` in samples where the trigger was disarmed: not searched
+    /// for taps, also not on re-analysis.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub disarmed: Vec<(u64, u64)>,
 }
 
 /// Transmissibility in dB at a frequency or over a band (negative = isolation).
@@ -167,6 +171,7 @@ impl RunFile {
             },
             isolation: None,
             notes,
+            disarmed: a.disarmed().to_vec(),
         }
     }
 

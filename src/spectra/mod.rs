@@ -73,6 +73,11 @@ pub struct Spectra {
     pub base_response: Option<(Vec<f64>, Vec<f64>, Vec<Complex64>)>,
     /// Response energy spectral density, unit^2 s/Hz.
     pub response_esd: Vec<f64>,
+    /// The same for quiet stretches with no tap (same windows, same scaling), averaged
+    /// over `background_records`: what the response holds without a tap (hum, pickup,
+    /// noise). Empty when no quiet stretch of a record's length was seen.
+    pub background_esd: Vec<f64>,
+    pub background_records: usize,
     pub spread_db: Vec<f64>,
     pub response_unit: String,
     pub force_unit: String,
@@ -166,6 +171,8 @@ pub struct SpectralAverager {
     force_response: Option<CrossAccumulator>,
     base_response: Option<CrossAccumulator>,
     response_auto: Vec<f64>,
+    background_auto: Vec<f64>,
+    background_count: usize,
     /// Hit-to-hit spread of the response level (a logarithm per line per hit, so only
     /// kept when someone will look at it).
     spread: Option<Spread>,
@@ -197,6 +204,8 @@ impl SpectralAverager {
             force_response: roles.force.map(|_| CrossAccumulator::new(lines)),
             base_response: roles.base.map(|_| CrossAccumulator::new(lines)),
             response_auto: vec![0.0; lines],
+            background_auto: vec![0.0; lines],
+            background_count: 0,
             spread: track_spread.then(|| Spread::new(lines)),
             count: 0,
             bufs: std::array::from_fn(|_| vec![Complex64::new(0.0, 0.0); lines]),
@@ -247,6 +256,22 @@ impl SpectralAverager {
         self.count
     }
 
+    /// Add a quiet record of the response (no tap in it) to the background spectrum.
+    pub fn add_background(&mut self, response: &[f64]) {
+        let rx = &mut self.bufs[1];
+        self.fft.transform(response, &self.windows.exponential, rx);
+        for (s, x) in self.background_auto.iter_mut().zip(rx.iter()) {
+            *s += x.norm_sqr();
+        }
+        self.background_count += 1;
+    }
+
+    /// Move the background spectrum of another averager over (after a re-average).
+    pub fn take_background(&mut self, other: &mut SpectralAverager) {
+        self.background_auto = std::mem::take(&mut other.background_auto);
+        self.background_count = other.background_count;
+    }
+
     pub fn spectra(&self) -> Spectra {
         let df = self.fs / self.fft.n_fft() as f64;
         let n = self.count.max(1) as f64;
@@ -269,6 +294,15 @@ impl SpectralAverager {
                 .zip(&self.factors)
                 .map(|(g, c)| g * c / n)
                 .collect(),
+            background_esd: if self.background_count == 0 {
+                Vec::new()
+            } else {
+                let nb = self.background_count as f64;
+                (self.background_auto.iter().zip(&self.factors))
+                    .map(|(g, c)| g * c / nb)
+                    .collect()
+            },
+            background_records: self.background_count,
             spread_db: self
                 .spread
                 .as_ref()

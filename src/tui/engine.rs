@@ -363,16 +363,18 @@ impl Engine {
             }
         }
         self.position = block.start + block.len() as u64;
-        if self.armed {
-            let new = self.analysis.push(block);
-            if new > 0 {
-                self.dirty = true;
-                // Every new hit is saved as it lands (see `autosave`): the WAV is flushed
-                // and the run files written, so nothing is lost if the app stops. The
-                // screen gets the hit first.
-                self.autosave_due = true;
-                out.push(Update::Analysis(Arc::new(self.snapshot())));
-            }
+        let new = if self.armed {
+            self.analysis.push(block)
+        } else {
+            self.analysis.push_disarmed(block)
+        };
+        if new > 0 {
+            self.dirty = true;
+            // Every new hit is saved as it lands (see `autosave`): the WAV is flushed
+            // and the run files written, so nothing is lost if the app stops. The
+            // screen gets the hit first.
+            self.autosave_due = true;
+            out.push(Update::Analysis(Arc::new(self.snapshot())));
         }
         let fs = self.setup.info.sample_rate;
         if self.position.saturating_sub(self.last_flush) as f64 >= FLUSH_EVERY_S * fs {

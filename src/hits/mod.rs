@@ -3,6 +3,8 @@
 //! The detector works sample by sample with state that never depends on block boundaries,
 //! so a file read in one piece and a live stream in small blocks give identical hits.
 
+pub mod pulses;
+
 use crate::signal::{Block, Roles, StreamInfo};
 use serde::{Deserialize, Serialize};
 
@@ -33,7 +35,9 @@ pub struct TriggerConfig {
 pub struct CheckConfig {
     /// A sample at or above this fraction of full scale counts as clipping.
     pub clip_fraction: f64,
-    /// A second force pulse above this fraction of the first is a double hit.
+    /// A second pulse above this fraction of the strongest, before or after it, is a
+    /// double hit (force pulses, or bursts of the response's prediction error without a
+    /// force channel; see `pulses`).
     pub double_fraction: f64,
     /// Largest response level (RMS of the last 5 % of the record, noise removed, over the
     /// peak) still counted as decayed.
@@ -64,6 +68,12 @@ pub enum Verdict {
     TooWeak,
     /// Rejected by the operator.
     Dropped,
+    /// The trigger fired during the dead time after the previous record: no record taken.
+    TooSoon,
+    /// The stream ended before the record was complete.
+    CutShort,
+    /// Samples were lost (a link gap) in the middle of the record.
+    Interrupted,
 }
 
 impl Verdict {
@@ -78,7 +88,17 @@ impl Verdict {
             Verdict::NotDecayed => "not decayed",
             Verdict::TooWeak => "too weak",
             Verdict::Dropped => "dropped",
+            Verdict::TooSoon => "too soon",
+            Verdict::CutShort => "cut short",
+            Verdict::Interrupted => "interrupted",
         }
+    }
+    /// True when the hit has a complete record an operator could accept.
+    pub fn has_record(self) -> bool {
+        !matches!(
+            self,
+            Verdict::TooSoon | Verdict::CutShort | Verdict::Interrupted
+        )
     }
 }
 
@@ -128,6 +148,12 @@ impl Floor {
         if self.count == CHUNK {
             let mean = self.sum / CHUNK as f64;
             let var = (self.sum_sq / CHUNK as f64 - mean * mean).max(0.0);
+            if self.sum_sq == 0.0 {
+                // Digital silence (exact zeros: a muted input, a padded gap) says nothing
+                // about the noise the next tap will sit on: left out of the history.
+                self.discard_chunk();
+                return false;
+            }
             if self.means.len() == CHUNK_HISTORY {
                 self.means.pop_front();
                 self.rmss.pop_front();
@@ -157,6 +183,19 @@ impl Floor {
     }
 }
 
+/// The smallest noise floor the trigger assumes for a channel: the quantisation noise of a
+/// 16-bit converter at the channel's full scale (q / sqrt(12) with q = full scale / 2^15,
+/// about -101 dBFS), or of one count when the full scale is unknown. After a stretch of
+/// digital silence (exact zeros) the measured floor is zero and a trigger at a multiple of
+/// it would fire on anything; with this bound it fires on taps only.
+pub fn noise_lower_bound(channel: &crate::signal::ChannelInfo) -> f64 {
+    let q = match channel.full_scale {
+        Some(fs) if fs > 0.0 && fs.is_finite() => fs / 32768.0,
+        _ => channel.scale.abs(),
+    };
+    q / 12f64.sqrt()
+}
+
 fn median(values: impl Iterator<Item = f64>) -> f64 {
     let mut v: Vec<f64> = values.collect();
     if v.is_empty() {
@@ -176,9 +215,22 @@ fn median(values: impl Iterator<Item = f64>) -> f64 {
 
 enum Phase {
     Idle,
-    Recording { trigger: u64, start: u64 },
-    HoldOff { until: u64 },
+    Recording {
+        trigger: u64,
+        start: u64,
+    },
+    /// Dead time: no record is taken, but a new onset above `guard` (the previous tap's
+    /// remaining level, with a margin) is reported as a tap that came too soon. Until
+    /// `learn_until` the guard follows the signal up instead (a tap's own rise).
+    HoldOff {
+        until: u64,
+        guard: f64,
+        learn_until: u64,
+    },
 }
+
+/// Largest number of quiet records kept for the background spectrum.
+pub const IDLE_RECORDS: usize = 8;
 
 /// Turns a stream of blocks into hits.
 pub struct HitDetector {
@@ -186,6 +238,9 @@ pub struct HitDetector {
     checks: CheckConfig,
     roles: Roles,
     full_scale: Vec<Option<f64>>,
+    /// Lower bound of each channel's noise floor (see `noise_lower_bound`).
+    min_noise: Vec<f64>,
+    sample_rate: f64,
     pre_len: usize,
     record_len: usize,
     holdoff_len: u64,
@@ -200,8 +255,16 @@ pub struct HitDetector {
     lost: u64,
     /// Records abandoned because samples went missing in the middle of them.
     interrupted: usize,
+    /// Envelope window of the response-only double-hit test (about 0.5 ms).
     onset_window: usize,
     hits: usize,
+    /// Stream index of the previous trigger (for "too soon").
+    last_trigger: Option<u64>,
+    /// Response samples of the quiet stretch being collected, and finished quiet records
+    /// waiting to be taken (see `take_idle`).
+    idle: Vec<f64>,
+    idle_done: Vec<Vec<f64>>,
+    idle_taken: usize,
 }
 
 impl HitDetector {
@@ -217,6 +280,8 @@ impl HitDetector {
         let record_len = ((trigger.record_s * fs).round() as usize).max(pre_len + 16);
         HitDetector {
             full_scale: info.channels.iter().map(|c| c.full_scale).collect(),
+            min_noise: info.channels.iter().map(noise_lower_bound).collect(),
+            sample_rate: fs,
             pre_len,
             record_len,
             holdoff_len: (trigger.holdoff_s * fs).round() as u64,
@@ -228,8 +293,12 @@ impl HitDetector {
             seen: 0,
             lost: 0,
             interrupted: 0,
-            onset_window: ((0.001 * fs).round() as usize).max(2),
+            onset_window: ((0.0005 * fs).round() as usize).max(2),
             hits: 0,
+            last_trigger: None,
+            idle: Vec::new(),
+            idle_done: Vec::new(),
+            idle_taken: 0,
             trigger,
             checks,
             roles,
@@ -253,8 +322,13 @@ impl HitDetector {
         }
         Some(match self.trigger.level {
             TriggerLevel::Absolute(v) => v,
-            TriggerLevel::NoiseMultiple(k) => k * f.noise(),
+            TriggerLevel::NoiseMultiple(k) => k * self.noise_of(self.trigger.channel),
         })
+    }
+
+    /// Measured noise floor (RMS) of a channel, never below its lower bound.
+    fn noise_of(&self, channel: usize) -> f64 {
+        self.floors[channel].noise().max(self.min_noise[channel])
     }
 
     /// Baseline (idle mean) of a channel, if measured.
@@ -288,14 +362,61 @@ impl HitDetector {
         self.lost
     }
 
-    /// A gap in the stream: a record in progress is lost and the pre-trigger ring refills.
-    fn skip_to(&mut self, position: u64) {
-        self.lost += position - self.seen;
-        if matches!(self.phase, Phase::Recording { .. }) {
+    /// Quiet records (response channel, mean removed, one record long) collected since the
+    /// last call: stretches with no trigger, for the background spectrum. At most
+    /// `IDLE_RECORDS` over the stream.
+    pub fn take_idle(&mut self) -> Vec<Vec<f64>> {
+        std::mem::take(&mut self.idle_done)
+    }
+
+    /// A hit without a usable record (too soon, cut short, interrupted).
+    fn empty_hit(&mut self, start: u64, trigger: u64, verdict: Verdict, reason: String) -> Hit {
+        self.hits += 1;
+        self.last_trigger = Some(trigger);
+        Hit {
+            number: self.hits,
+            start,
+            trigger,
+            record: vec![Vec::new(); self.ring.len()],
+            verdict,
+            reason,
+            peak_force: None,
+            peak_response: 0.0,
+            residual: 0.0,
+            noise_rms: self.frozen[self.roles.response].1,
+        }
+    }
+
+    /// A gap in the stream: a record in progress is lost (reported as an interrupted hit)
+    /// and the pre-trigger ring refills.
+    fn skip_to(&mut self, position: u64, out: &mut Vec<Hit>) {
+        let missing = position - self.seen;
+        self.lost += missing;
+        let why = format!("{missing} samples were lost (a link gap)");
+        self.restart_at(position, &why, out);
+    }
+
+    /// Samples up to `position` are not searched for taps (the operator disarmed the
+    /// trigger): as a gap, but nothing counts as lost.
+    pub fn pause_until(&mut self, position: u64, out: &mut Vec<Hit>) {
+        if position > self.seen {
+            self.restart_at(position, "the trigger was disarmed", out);
+        }
+    }
+
+    fn restart_at(&mut self, position: u64, why: &str, out: &mut Vec<Hit>) {
+        if let Phase::Recording { trigger, start } = self.phase {
             self.interrupted += 1;
+            let reason = format!(
+                "{why} {:.2} s into the record: not usable",
+                (self.seen - start) as f64 / self.fs()
+            );
+            let hit = self.empty_hit(start, trigger, Verdict::Interrupted, reason);
+            out.push(hit);
         }
         self.seen = position;
         self.phase = Phase::Idle;
+        self.idle.clear();
         for c in 0..self.ring.len() {
             self.ring[c].clear();
             self.record[c].clear();
@@ -303,12 +424,35 @@ impl HitDetector {
         }
     }
 
+    fn fs(&self) -> f64 {
+        self.sample_rate
+    }
+
+    /// The end of the stream: a record still being taken becomes a hit cut short.
+    pub fn finish(&mut self, out: &mut Vec<Hit>) {
+        if let Phase::Recording { trigger, start } = self.phase {
+            let reason = format!(
+                "the recording ended {:.2} s into the record (it needs {:.2} s): not usable",
+                (self.seen - start) as f64 / self.fs(),
+                self.trigger.record_s
+            );
+            let hit = self.empty_hit(start, trigger, Verdict::CutShort, reason);
+            out.push(hit);
+            for r in &mut self.record {
+                r.clear();
+            }
+            self.phase = Phase::Idle;
+        }
+    }
+
     pub fn push(&mut self, block: &Block, out: &mut Vec<Hit>) {
         if block.start > self.seen {
-            self.skip_to(block.start);
+            self.skip_to(block.start, out);
         }
         let n_ch = self.ring.len();
         let n = block.len();
+        let rc = self.roles.response;
+        let collect_idle = self.idle_taken < IDLE_RECORDS;
         let mut k = 0;
         while k < n {
             match self.phase {
@@ -325,11 +469,12 @@ impl HitDetector {
                             for c in 0..n_ch {
                                 let f = &mut self.floors[c];
                                 f.discard_chunk();
-                                self.frozen[c] = (f.baseline(), f.noise());
+                                self.frozen[c] = (f.baseline(), f.noise().max(self.min_noise[c]));
                                 self.record[c].clear();
                                 self.record[c].extend(self.ring[c].drain(..));
                                 self.record[c].push(block.channels[c][k]);
                             }
+                            self.idle.clear();
                             self.seen += 1;
                             k += 1;
                             self.phase = Phase::Recording {
@@ -353,6 +498,16 @@ impl HitDetector {
                                 ring.push_back(v);
                             }
                         }
+                        if collect_idle && self.idle_taken < IDLE_RECORDS {
+                            self.idle.push(block.channels[rc][k]);
+                            if self.idle.len() == self.record_len {
+                                let mut quiet = std::mem::take(&mut self.idle);
+                                let mean = quiet.iter().sum::<f64>() / quiet.len() as f64;
+                                quiet.iter_mut().for_each(|v| *v -= mean);
+                                self.idle_done.push(quiet);
+                                self.idle_taken += 1;
+                            }
+                        }
                         self.seen += 1;
                         k += 1;
                     }
@@ -366,12 +521,56 @@ impl HitDetector {
                     k += take;
                     self.finish_if_full(out);
                 }
-                Phase::HoldOff { until } => {
-                    let skip = (until.saturating_sub(self.seen) as usize).min(n - k);
-                    self.seen += skip as u64;
-                    k += skip;
-                    if self.seen >= until {
+                Phase::HoldOff {
+                    until,
+                    mut guard,
+                    learn_until,
+                } => {
+                    let tc = self.trigger.channel;
+                    let th = self.threshold().unwrap_or(f64::INFINITY);
+                    let base = self.floors[tc].baseline();
+                    let stop = (k + until.saturating_sub(self.seen) as usize).min(n);
+                    let mut fired = None;
+                    while k < stop {
+                        let dev = (block.channels[tc][k] - base).abs();
+                        if self.seen < learn_until {
+                            guard = guard.max(dev);
+                        } else if dev > th.max(guard) {
+                            fired = Some(self.seen);
+                        }
+                        self.seen += 1;
+                        k += 1;
+                        if fired.is_some() {
+                            break;
+                        }
+                    }
+                    if let Some(at) = fired {
+                        let since = self
+                            .last_trigger
+                            .map_or(0.0, |t| (at - t) as f64 / self.fs());
+                        let reason = format!(
+                            "came {since:.2} s after the previous tap, inside its record and dead time ({:.2} s): wait for the part to settle",
+                            self.trigger.record_s - self.trigger.pretrigger_s
+                                + self.trigger.holdoff_s
+                        );
+                        let hit = self.empty_hit(at, at, Verdict::TooSoon, reason);
+                        out.push(hit);
+                        // The early tap rings for a record too: dead time until then, and
+                        // its own rise is learnt for 20 ms so it is reported once.
+                        let tail = self.record_len as u64 - self.pre_len as u64;
+                        self.phase = Phase::HoldOff {
+                            until: at + tail + self.holdoff_len,
+                            guard: 2.0 * dev_at(block, tc, k - 1, base),
+                            learn_until: at + (0.02 * self.fs()) as u64,
+                        };
+                    } else if self.seen >= until {
                         self.phase = Phase::Idle;
+                    } else {
+                        self.phase = Phase::HoldOff {
+                            until,
+                            guard,
+                            learn_until,
+                        };
                     }
                 }
             }
@@ -386,8 +585,17 @@ impl HitDetector {
             return;
         }
         let raw: Vec<Vec<f64>> = self.record.iter_mut().map(std::mem::take).collect();
+        // The previous tap's remaining level on the trigger channel, over the last tenth of
+        // the record: a later onset must rise 3 times over it to count as a new tap
+        // (margin for beating of close modes: common practice, no source).
+        let tc = self.trigger.channel;
+        let tail = &raw[tc][raw[tc].len() - (raw[tc].len() / 10).max(1)..];
+        let remaining = tail
+            .iter()
+            .fold(0.0f64, |m, v| m.max((v - self.frozen[tc].0).abs()));
         self.hits += 1;
         let hit = self.judge(raw, start, trigger);
+        self.last_trigger = Some(trigger);
         out.push(hit);
         for r in &mut self.record {
             r.reserve(self.record_len);
@@ -395,6 +603,8 @@ impl HitDetector {
         self.phase = if self.holdoff_len > 0 {
             Phase::HoldOff {
                 until: self.seen + self.holdoff_len,
+                guard: 3.0 * remaining,
+                learn_until: self.seen,
             }
         } else {
             Phase::Idle
@@ -441,9 +651,18 @@ impl HitDetector {
             .force
             .map(|f| record[f].iter().fold(0.0f64, |m, v| m.max(v.abs())));
         if verdict == Verdict::Accepted {
+            let fs = self.fs();
             let second = match self.roles.force {
-                Some(f) => second_pulse(&record[f], c.double_fraction, 5.0 * self.frozen[f].1),
-                None => second_onset(resp, self.pre_len, self.onset_window),
+                Some(f) => pulses::second_force_pulse(
+                    &record[f],
+                    c.double_fraction,
+                    5.0 * self.frozen[f].1,
+                )
+                .map(|p| p.describe(fs, "force")),
+                None => {
+                    pulses::second_response_pulse(resp, c.double_fraction, self.onset_window, fs)
+                        .map(|p| p.describe(fs, "size (response prediction error)"))
+                }
             };
             if let Some(found) = second {
                 verdict = Verdict::DoubleHit;
@@ -463,7 +682,7 @@ impl HitDetector {
         if verdict == Verdict::Accepted && residual > c.residual_limit {
             verdict = Verdict::NotDecayed;
             reason = format!(
-                "response still at {:.1} % of its peak at the end of the record (limit {:.1} %): lengthen the record",
+                "response still at {:.1} % of its peak at the end of the record (limit {:.1} %): lengthen the record (--record-s)",
                 100.0 * residual,
                 100.0 * c.residual_limit
             );
@@ -483,61 +702,8 @@ impl HitDetector {
     }
 }
 
-/// A second force pulse after the first has ended: returns a description if found.
-fn second_pulse(force: &[f64], fraction: f64, noise_limit: f64) -> Option<String> {
-    let (p_idx, peak) =
-        force.iter().enumerate().fold(
-            (0, 0.0f64),
-            |(i, m), (j, v)| if v.abs() > m { (j, v.abs()) } else { (i, m) },
-        );
-    if peak <= 0.0 {
-        return None;
-    }
-    let end_level = 0.05 * peak;
-    let end = p_idx + force[p_idx..].iter().position(|v| v.abs() < end_level)?;
-    let limit = (fraction * peak).max(noise_limit);
-    let (q_off, q) = force[end..]
-        .iter()
-        .enumerate()
-        .fold(
-            (0, 0.0f64),
-            |(i, m), (j, v)| if v.abs() > m { (j, v.abs()) } else { (i, m) },
-        );
-    (q > limit).then(|| {
-        format!(
-            "second impact {} samples after the first at {:.0} % of its force",
-            end + q_off - p_idx,
-            100.0 * q / peak
-        )
-    })
-}
-
-/// Without a force channel: a second impact shows as a new sharp onset. The first difference
-/// of the response stresses the impulsive part; its peak level in windows of about 1 ms must
-/// jump by half over the window before and stand above a fifth of the first onset
-/// (common practice, no source). Without a force channel this catches clear bounces only.
-fn second_onset(resp: &[f64], from: usize, win: usize) -> Option<String> {
-    let start = from.min(resp.len().saturating_sub(1));
-    let env: Vec<f64> = resp[start..]
-        .windows(2)
-        .map(|w| (w[1] - w[0]).abs())
-        .collect::<Vec<_>>()
-        .chunks(win)
-        .map(|w| w.iter().fold(0.0f64, |m, v| m.max(*v)))
-        .collect();
-    let (p, peak) = env.iter().enumerate().fold(
-        (0, 0.0f64),
-        |(i, m), (j, &v)| if v > m { (j, v) } else { (i, m) },
-    );
-    for k in p + 2..env.len() {
-        if env[k] > 1.5 * env[k - 1] && env[k] > peak / 5.0 {
-            return Some(format!(
-                "the response rose again sharply {} samples after its peak",
-                (k - p) * win
-            ));
-        }
-    }
-    None
+fn dev_at(block: &Block, channel: usize, k: usize, base: f64) -> f64 {
+    (block.channels[channel][k] - base).abs()
 }
 
 #[cfg(test)]
@@ -610,5 +776,113 @@ mod tests {
             hits.iter().map(|h| &h.reason).collect::<Vec<_>>()
         );
         assert!(hits[0].reason.contains("full scale"));
+    }
+
+    /// A response-only stream at 3.2 kHz: taps (time s, size) on a 72 Hz and a 148 Hz mode,
+    /// noise, and optionally exact zeros over a stretch (digital silence).
+    fn stream(taps: &[(f64, f64)], seconds: f64, silence: Option<(f64, f64)>) -> Vec<Hit> {
+        let fs = 3200.0;
+        let mut rng = crate::rng::Rng::new(11);
+        let n = (seconds * fs) as usize;
+        let x: Vec<f64> = (0..n)
+            .map(|i| {
+                let t = i as f64 / fs;
+                if silence.is_some_and(|(a, b)| t >= a && t < b) {
+                    return 0.0;
+                }
+                let ring: f64 = taps
+                    .iter()
+                    .filter(|(t0, _)| t >= *t0)
+                    .map(|(t0, a)| {
+                        let dt = t - t0;
+                        [(72.0f64, 0.01f64), (148.0, 0.012)]
+                            .iter()
+                            .map(|(f, z)| {
+                                let w = 2.0 * std::f64::consts::PI * f;
+                                a * (-z * w * dt).exp() * (w * dt).cos()
+                            })
+                            .sum::<f64>()
+                    })
+                    .sum();
+                ring + 1e-3 * rng.normal()
+            })
+            .collect();
+        let info = StreamInfo {
+            source: "test".into(),
+            sample_rate: fs,
+            channels: vec![crate::signal::ChannelInfo {
+                name: "a".into(),
+                role: crate::signal::Role::Response,
+                unit: "g".into(),
+                scale: 1.0,
+                full_scale: Some(16.0),
+            }],
+        };
+        let roles = Roles {
+            force: None,
+            response: 0,
+            base: None,
+        };
+        let trig = TriggerConfig {
+            channel: 0,
+            level: TriggerLevel::NoiseMultiple(10.0),
+            pretrigger_s: 0.01,
+            record_s: 1.0,
+            holdoff_s: 0.2,
+        };
+        let mut d = HitDetector::new(&info, roles, trig, CheckConfig::default());
+        let mut hits = Vec::new();
+        // Odd block sizes: the outcome must not depend on them.
+        for (i, chunk) in x.chunks(997).enumerate() {
+            let block = Block {
+                start: (i * 997) as u64,
+                channels: vec![chunk.to_vec()],
+            };
+            d.push(&block, &mut hits);
+        }
+        d.finish(&mut hits);
+        hits
+    }
+
+    #[test]
+    fn every_tap_gets_a_verdict() {
+        // 1.1 s after a tap is inside the dead time after its record: "too soon" (inside
+        // the record it would be a double hit); a tap 0.4 s before the end
+        // is cut short; the others are accepted.
+        let hits = stream(&[(1.0, 1.0), (2.1, 1.0), (4.0, 1.0), (6.6, 1.0)], 7.0, None);
+        let v: Vec<Verdict> = hits.iter().map(|h| h.verdict).collect();
+        assert_eq!(
+            v,
+            [
+                Verdict::Accepted,
+                Verdict::TooSoon,
+                Verdict::Accepted,
+                Verdict::CutShort
+            ],
+            "{:?}",
+            hits.iter().map(|h| &h.reason).collect::<Vec<_>>()
+        );
+        assert!(
+            hits[1].reason.contains("1.10 s after"),
+            "{}",
+            hits[1].reason
+        );
+        assert!(hits[3].record[0].is_empty() && !hits[3].verdict.has_record());
+    }
+
+    #[test]
+    fn the_trigger_recovers_after_digital_silence() {
+        // Two seconds of exact zeros make the measured floor zero; without a lower bound
+        // the noise after them would fire the trigger as if it were a tap.
+        let hits = stream(&[(5.0, 1.0)], 7.0, Some((0.5, 2.5)));
+        assert_eq!(
+            hits.len(),
+            1,
+            "{:?}",
+            hits.iter()
+                .map(|h| (h.trigger, &h.reason))
+                .collect::<Vec<_>>()
+        );
+        assert_eq!(hits[0].verdict, Verdict::Accepted, "{}", hits[0].reason);
     }
 }
