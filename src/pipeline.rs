@@ -2,7 +2,11 @@
 
 use crate::error::Result;
 use crate::hits::{CheckConfig, Hit, HitDetector, TriggerConfig, TriggerLevel, Verdict};
-use crate::modes::{Mode, ModeConfig, find_modes};
+use crate::modes::{Mode, ModeConfig, ModeSearch, SearchContext, search_modes};
+
+/// How far the force spectrum may fall below its low-frequency level before the search
+/// band ends there (dB); see `Analysis::band`.
+pub const FORCE_BAND_DB: f64 = 20.0;
 use crate::signal::{Block, Roles, StreamInfo};
 use crate::spectra::{Basis, Estimator, Spectra, SpectraConfig, SpectralAverager};
 use serde::{Deserialize, Serialize};
@@ -115,6 +119,7 @@ impl Analysis {
         let hi = if hi.is_finite() {
             hi.min(nyquist)
         } else {
+            cfg.modes.band_from_data = true;
             0.4 * fs
         };
         cfg.modes.band_hz = (lo.max(0.0), hi);
@@ -395,27 +400,57 @@ impl Analysis {
             .collect()
     }
 
-    /// Modes on the current basis (empty before the first accepted hit), with their
-    /// hit-to-hit uncertainty, and ring-down damping for response-only runs.
+    /// Modes on the current basis (see `search`).
     pub fn modes(&self, spectra: &Spectra) -> Vec<Mode> {
+        self.search(spectra).modes
+    }
+
+    /// The mode search on the current basis (empty before the first accepted hit): modes
+    /// with their hit-to-hit uncertainty (ring-down damping for response-only runs), the
+    /// peaks set aside, and notes on what is doubtful.
+    pub fn search(&self, spectra: &Spectra) -> ModeSearch {
+        let nothing = ModeSearch {
+            band_hz: self.cfg.modes.band_hz,
+            ..ModeSearch::default()
+        };
         if spectra.hits == 0 {
-            return Vec::new();
+            return nothing;
         }
         let basis = self.basis();
         let Some(curve) = spectra.curve(basis) else {
-            return Vec::new();
+            return nothing;
         };
+        let mut notes = Vec::new();
         let cfg = crate::modes::ModeConfig {
             averages: spectra.hits,
+            band_hz: self.band(spectra, &mut notes),
             ..self.cfg.modes.clone()
         };
-        let mut modes = find_modes(
+        let ctx = SearchContext {
+            background: (spectra.background_records > 0)
+                .then(|| (&spectra.background_esd[..], &spectra.response_esd[..])),
+        };
+        if spectra.background_records == 0 {
+            notes.push(
+                "no quiet stretch of a record's length was seen before or between the taps, so peaks could not be checked against the response without taps (hum, pickup): leave a few quiet seconds before the first tap".into(),
+            );
+        }
+        if spectra.hits == 1 {
+            notes.push(
+                "one accepted hit: no coherence and no hit-to-hit spread can be estimated, so the modes are unconfirmed; tap a few more times".into(),
+            );
+        }
+        let mut found = search_modes(
             &spectra.freqs,
             &curve,
             spectra.resolution_hz,
             spectra.tau_s,
             &cfg,
+            &ctx,
         );
+        notes.append(&mut found.notes);
+        found.notes = notes;
+        let modes = &mut found.modes;
         let records = self.accepted_records();
         if records.len() >= 2 {
             let d = &self.detector;
@@ -429,7 +464,7 @@ impl Analysis {
                 basis,
             );
             crate::modes::uncertainty::attach(
-                &mut modes,
+                modes,
                 &spectra.freqs,
                 &curves,
                 spectra.resolution_hz,
@@ -442,13 +477,54 @@ impl Analysis {
                 .map(|r| r[self.roles.response].as_slice())
                 .collect();
             crate::modes::ringdown::attach_ringdown(
-                &mut modes,
+                modes,
                 &responses,
                 self.info.sample_rate,
                 &crate::modes::ringdown::RingdownConfig::default(),
             );
         }
-        modes
+        found
+    }
+
+    /// The band the modes are searched in. A given band is used as is; without an upper
+    /// edge, the search stops below the anti-alias limit (0.4 fs) and, with a force
+    /// channel, where the hammer's force spectrum has fallen 20 dB below its level at the
+    /// bottom of the band: above that the tap puts little energy in and the FRF is the
+    /// ratio of two noises (the usable band of an impact is commonly taken to end 10 to
+    /// 20 dB down; common practice, no source).
+    pub fn band(&self, spectra: &Spectra, notes: &mut Vec<String>) -> (f64, f64) {
+        let (lo, hi) = self.cfg.modes.band_hz;
+        if !self.cfg.modes.band_from_data || !matches!(self.basis(), Basis::Frf(_)) {
+            return (lo, hi);
+        }
+        let Some((gff, _, _)) = spectra.force_response.as_ref() else {
+            return (lo, hi);
+        };
+        let f = &spectra.freqs;
+        let start = f.partition_point(|&x| x < lo.max(f.get(1).copied().unwrap_or(0.0)));
+        let stop = f
+            .partition_point(|&x| x < (2.0 * lo).max(lo + 10.0))
+            .max(start + 1);
+        let mut base: Vec<f64> = gff[start..stop.min(gff.len())].to_vec();
+        if base.is_empty() {
+            return (lo, hi);
+        }
+        base.sort_by(f64::total_cmp);
+        let reference = base[base.len() / 2];
+        let limit = reference * 10f64.powf(-FORCE_BAND_DB / 10.0);
+        let cut = (start..gff.len())
+            .find(|&k| gff[k] < limit)
+            .map(|k| f[k])
+            .filter(|&c| c < hi && c > lo);
+        match cut {
+            Some(c) => {
+                notes.push(format!(
+                    "modes searched up to {c:.0} Hz: there the hammer's force spectrum is {FORCE_BAND_DB:.0} dB below its level at the bottom of the band, so the tap drives little above it (a harder tip reaches higher; --band overrides)"
+                ));
+                (lo, c)
+            }
+            None => (lo, hi),
+        }
     }
 
     /// The soft mount read from the transmissibility, when there is a base channel.

@@ -102,9 +102,13 @@ pub struct AnalysisArgs {
     /// Curve the modes are read from [default: frf with a force channel, else spectrum].
     #[arg(long, value_enum)]
     pub view: Option<ViewArg>,
-    /// Smallest peak prominence, dB [default: 6].
+    /// Smallest peak prominence, dB [default: 3 on an FRF or transmissibility with two or
+    /// more averages (the coherence vouches for the peak), else 6].
     #[arg(long, value_name = "DB")]
     pub min_prominence_db: Option<f64>,
+    /// Most modes listed; peaks beyond it are named in the notes [default: 12].
+    #[arg(long, value_name = "N")]
+    pub max_modes: Option<usize>,
 }
 
 fn parse_band(s: &str) -> std::result::Result<(f64, f64), String> {
@@ -157,8 +161,15 @@ impl AnalysisArgs {
         if let Some(b) = self.band {
             modes.band_hz = b;
         }
+        if let Some(n) = self.max_modes {
+            if n == 0 {
+                crate::fail!("--max-modes must be at least 1");
+            }
+            modes.max_modes = n;
+        }
         if let Some(p) = self.min_prominence_db {
             modes.min_prominence_db = p;
+            modes.min_prominence_coherent_db = p;
         }
         let basis = self.view.map(|v| match v {
             ViewArg::Frf => Basis::Frf(self.estimator),

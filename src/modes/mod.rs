@@ -121,6 +121,75 @@ pub struct Estimate {
     pub damping_ratio: Option<f64>,
 }
 
+/// Why a peak of the curve is not listed as a mode.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum LeftOutReason {
+    /// More candidates passed every test than `max_modes`: the least prominent are left out.
+    Limit,
+    /// A narrow line already present before the taps at the same level (mains hum and its
+    /// harmonics, electrical pickup, a fan).
+    StationaryLine,
+    /// The taps do not lift the response here above what it holds without a tap.
+    Background,
+    /// Narrower than the windows allow a structural peak to be: noise or leakage.
+    Spike,
+}
+
+impl LeftOutReason {
+    pub fn label(self) -> &'static str {
+        match self {
+            LeftOutReason::Limit => "over the mode limit",
+            LeftOutReason::StationaryLine => "stationary line (there before the taps)",
+            LeftOutReason::Background => "not above the background without taps",
+            LeftOutReason::Spike => "too narrow for a mode, or width not measurable",
+        }
+    }
+}
+
+/// A peak that is not listed as a mode, and why.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LeftOut {
+    pub frequency_hz: f64,
+    pub prominence_db: f64,
+    pub reason: LeftOutReason,
+}
+
+/// What the mode search found and what it set aside.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct ModeSearch {
+    pub modes: Vec<Mode>,
+    /// Peaks set aside, each with its reason (peaks of noise below chance coherence are
+    /// only counted, in `incoherent_peaks`).
+    pub left_out: Vec<LeftOut>,
+    pub incoherent_peaks: usize,
+    /// The band searched, Hz.
+    pub band_hz: (f64, f64),
+    /// Sentences for the reader: what was dropped or is doubtful, and why.
+    pub notes: Vec<String>,
+}
+
+/// What the search knows besides the curve.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct SearchContext<'a> {
+    /// (background, taps): the response's energy spectral density without taps and
+    /// averaged over the taps, on the curve's lines with the same windows. Peaks the taps
+    /// do not lift 6 dB over the background are not modes.
+    pub background: Option<(&'a [f64], &'a [f64])>,
+}
+
+/// Damping ratios under this (Q over 1000) are not taken for modes of a frame, arm or
+/// mounted stack (bolted and bonded composite parts sit near 0.2-5 %): common practice, no
+/// source.
+pub const MIN_DAMPING: f64 = 5e-4;
+
+/// The taps must lift the response this far over the background at a peak (dB): common
+/// practice, no source.
+pub const OVER_BACKGROUND_DB: f64 = 6.0;
+/// A background line counts as stationary (hum, pickup) when it stands this far over the
+/// background's own floor (dB): common practice, no source.
+pub const LINE_DB: f64 = 10.0;
+
 /// Settings of the mode finder.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ModeConfig {
@@ -135,11 +204,20 @@ pub struct ModeConfig {
     /// `NOISE_COHERENCE` instead (common practice, no source).
     #[serde(default = "coherent_floor_db")]
     pub min_above_floor_coherent_db: f64,
+    /// The prominence needed on such curves (dB): a weak mode beside a strong one often
+    /// stands only 3-5 dB out of its flank, and the coherence test already keeps noise
+    /// out; finding it also keeps the band fit of its neighbour honest.
+    #[serde(default = "coherent_prominence_db")]
+    pub min_prominence_coherent_db: f64,
     /// Records averaged into the curve (0 = unknown); sets the coherence a noise line can
     /// reach by chance (see `noise_coherence`).
     #[serde(default)]
     pub averages: usize,
     pub max_modes: usize,
+    /// The upper band edge was not given: it follows the data (the hammer's usable band,
+    /// see `pipeline::Analysis::search`) below the anti-alias limit stored in `band_hz`.
+    #[serde(default)]
+    pub band_from_data: bool,
     /// The response is an acceleration (accelerometer, contact microphone): peaks are read
     /// on the curve divided by frequency, i.e. on mobility. For a viscous SDOF the mobility
     /// peaks exactly at fn and its half-power points satisfy f2 - f1 = 2 z fn and
@@ -157,6 +235,10 @@ fn coherent_floor_db() -> f64 {
     6.0
 }
 
+fn coherent_prominence_db() -> f64 {
+    3.0
+}
+
 impl Default for ModeConfig {
     fn default() -> Self {
         ModeConfig {
@@ -164,8 +246,10 @@ impl Default for ModeConfig {
             min_prominence_db: 6.0,
             min_above_floor_db: 10.0,
             min_above_floor_coherent_db: coherent_floor_db(),
+            min_prominence_coherent_db: coherent_prominence_db(),
             averages: 0,
             max_modes: 12,
+            band_from_data: false,
             acceleration_response: true,
         }
     }
@@ -179,6 +263,33 @@ pub fn find_modes(
     tau_s: Option<f64>,
     cfg: &ModeConfig,
 ) -> Vec<Mode> {
+    search_modes(
+        freqs,
+        curve,
+        resolution_hz,
+        tau_s,
+        cfg,
+        &SearchContext::default(),
+    )
+    .modes
+}
+
+/// Find the modes on a curve, saying what was set aside. Every test that decides whether a
+/// peak is a mode (coherence above chance, prominence, width the windows allow, lift over
+/// the background) runs before the limit on the count, so noise spikes and hum lines
+/// cannot crowd real modes out; what the limit still drops is listed.
+pub fn search_modes(
+    freqs: &[f64],
+    curve: &Curve,
+    resolution_hz: f64,
+    tau_s: Option<f64>,
+    cfg: &ModeConfig,
+    ctx: &SearchContext,
+) -> ModeSearch {
+    let mut out = ModeSearch {
+        band_hz: cfg.band_hz,
+        ..ModeSearch::default()
+    };
     let mobility =
         cfg.acceleration_response && curve.basis != crate::spectra::Basis::Transmissibility;
     let db: Vec<f64> = curve
@@ -190,39 +301,86 @@ pub fn find_modes(
             20.0 * m.max(1e-300).log10()
         })
         .collect();
-    // Peaks where the output is mostly noise (coherence under NOISE_COHERENCE) are noise
-    // spikes, not modes: left out.
+    // With one average there is no coherence to test (it is 1 at every line).
+    let coherent = curve.coherence.is_some() && cfg.averages != 1;
     let pick_cfg = ModeConfig {
-        min_above_floor_db: if curve.coherence.is_some() {
+        min_above_floor_db: if coherent {
             cfg.min_above_floor_coherent_db
         } else {
             cfg.min_above_floor_db
         },
+        min_prominence_db: if coherent {
+            cfg.min_prominence_coherent_db
+        } else {
+            cfg.min_prominence_db
+        },
         ..cfg.clone()
     };
-    let picked: Vec<peaks::Peak> = peaks::pick(freqs, &db, &pick_cfg)
-        .into_iter()
-        .filter(|p| {
-            curve
+    let mut picked = Vec::new();
+    let background = ctx.background.map(|(bg, taps)| {
+        let bg_db: Vec<f64> = bg.iter().map(|g| 10.0 * g.max(1e-300).log10()).collect();
+        let floor = peaks::noise_floor(freqs, &bg_db, peaks::band_range(freqs, cfg.band_hz));
+        (bg, taps, bg_db, floor)
+    });
+    for p in peaks::pick(freqs, &db, &pick_cfg) {
+        let leave = |reason| LeftOut {
+            frequency_hz: freqs[p.index],
+            prominence_db: p.prominence_db,
+            reason,
+        };
+        // Peaks where the output is mostly noise (coherence under the chance level for
+        // this many averages) are noise, not modes.
+        if coherent
+            && curve
                 .coherence
                 .as_ref()
-                .is_none_or(|c| c[p.index] >= noise_coherence(cfg.averages))
-        })
-        .collect();
-    // With an exponential window every structural peak is at least as wide as the window's
-    // own half-power band, 1/(pi tau) Hz (its pole moved by 1/tau); a peak under 0.8 of that
-    // is a noise or leakage spike, not a mode.
-    let picked: Vec<peaks::Peak> = match tau_s {
-        Some(tau) => picked
-            .into_iter()
-            .filter(|p| {
-                let r = halfpower::refine_peak(freqs, &db, p.index);
-                halfpower::half_power(freqs, &db, p.index, r.level_db)
-                    .map_or(true, |b| b.1 - b.0 >= 0.8 / (PI * tau))
-            })
-            .collect(),
-        None => picked,
-    };
+                .is_some_and(|c| c[p.index] < noise_coherence(cfg.averages))
+        {
+            out.incoherent_peaks += 1;
+            continue;
+        }
+        // With an exponential window every structural peak is at least as wide as the
+        // window's own half-power band, 1/(pi tau) Hz (its pole moved by 1/tau). A peak
+        // under 0.8 of that is a noise or leakage spike; without a coherence to vouch for
+        // the peak it must be 1.1 times as wide (noise under the window is about as wide as
+        // the window itself): common practice, no source.
+        if let Some(tau) = tau_s {
+            let r = halfpower::refine_peak(freqs, &db, p.index);
+            let least = if coherent { 0.8 } else { 1.1 } / (PI * tau);
+            if halfpower::half_power(freqs, &db, p.index, r.level_db)
+                .is_ok_and(|b| b.1 - b.0 < least)
+            {
+                out.left_out.push(leave(LeftOutReason::Spike));
+                continue;
+            }
+        }
+        if let Some((bg, taps, bg_db, floor)) = &background {
+            let k = p.index;
+            if taps[k] < bg[k] * 10f64.powf(OVER_BACKGROUND_DB / 10.0) {
+                let lo = k.saturating_sub(2);
+                let hi = (k + 3).min(bg.len());
+                let line = (lo..hi).any(|j| bg_db[j] - floor[j] >= LINE_DB);
+                out.left_out.push(leave(if line {
+                    LeftOutReason::StationaryLine
+                } else {
+                    LeftOutReason::Background
+                }));
+                continue;
+            }
+        }
+        picked.push(p);
+    }
+    if picked.len() > cfg.max_modes {
+        picked.sort_by(|a, b| b.prominence_db.total_cmp(&a.prominence_db));
+        for p in picked.drain(cfg.max_modes..) {
+            out.left_out.push(LeftOut {
+                frequency_hz: freqs[p.index],
+                prominence_db: p.prominence_db,
+                reason: LeftOutReason::Limit,
+            });
+        }
+        picked.sort_by_key(|p| p.index);
+    }
     let peak_freqs: Vec<f64> = picked.iter().map(|p| freqs[p.index]).collect();
     let mut seeds = Vec::with_capacity(picked.len());
     let mut modes: Vec<Mode> = picked
@@ -231,7 +389,11 @@ pub fn find_modes(
             let refined = halfpower::refine_peak(freqs, &db, p.index);
             let band = halfpower::half_power(freqs, &db, p.index, refined.level_db);
             let mut flags = Vec::new();
-            let coherence = curve.coherence.as_ref().map(|c| c[p.index]);
+            let coherence = curve
+                .coherence
+                .as_ref()
+                .filter(|_| cfg.averages != 1)
+                .map(|c| c[p.index]);
             if coherence.is_some_and(|c| c < LOW_COHERENCE) {
                 flags.push(Flag::LowCoherence);
             }
@@ -317,6 +479,107 @@ pub fn find_modes(
         &seeds,
         &fit::FitConfig::default(),
     );
+    // The band fit may add a mode (a peak split in two): it passes the same tests. And a
+    // mode whose own damping is under a tenth of the window's is as narrow as a steady sine
+    // seen through the window: hum, pickup or noise, not a decaying structure (a real
+    // lightly damped mode at 0.1 % and 70 Hz still has a fifth of a 1 s record's window
+    // damping): common practice, no source.
+    let k_of = |f: f64| freqs.partition_point(|&x| x < f).min(freqs.len() - 1);
+    modes.retain(|m| {
+        let k = k_of(m.frequency_hz);
+        let leave = |reason| LeftOut {
+            frequency_hz: m.frequency_hz,
+            prominence_db: m.prominence_db,
+            reason,
+        };
+        if coherent
+            && curve
+                .coherence
+                .as_ref()
+                .is_some_and(|c| c[k] < noise_coherence(cfg.averages))
+        {
+            out.incoherent_peaks += 1;
+            return false;
+        }
+        // Without a coherence and without a half-power band or fit nothing vouches for a
+        // peak's width: it is not confirmed as a mode. And no built-up frame or arm has
+        // a Q over 1000 (damping under MIN_DAMPING).
+        let unconfirmed = !coherent && m.half_power.is_none() && m.fit.is_none();
+        let too_sharp = m.damping_ratio.is_some_and(|z| z < MIN_DAMPING);
+        if unconfirmed
+            || too_sharp
+            || (m.window_damping > 0.0
+                && m.damping_ratio.is_none_or(|z| z < 0.1 * m.window_damping))
+        {
+            let steady = background.as_ref().is_some_and(|(bg, taps, _, _)| {
+                taps[k] < bg[k] * 10f64.powf(OVER_BACKGROUND_DB / 10.0)
+            });
+            out.left_out.push(leave(if steady {
+                LeftOutReason::StationaryLine
+            } else {
+                LeftOutReason::Spike
+            }));
+            return false;
+        }
+        if let Some((bg, taps, _, _)) = &background
+            && taps[k] < bg[k] * 10f64.powf(OVER_BACKGROUND_DB / 10.0)
+        {
+            out.left_out.push(leave(LeftOutReason::StationaryLine));
+            return false;
+        }
+        true
+    });
     modes.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
-    modes
+    out.left_out
+        .sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+    describe_left_out(&mut out, cfg);
+    out.modes = modes;
+    out
+}
+
+/// Notes for the reader about what was set aside.
+fn describe_left_out(out: &mut ModeSearch, cfg: &ModeConfig) {
+    let list = |reason: LeftOutReason| -> Vec<String> {
+        out.left_out
+            .iter()
+            .filter(|l| l.reason == reason)
+            .map(|l| format!("{:.1}", l.frequency_hz))
+            .collect()
+    };
+    let limit = list(LeftOutReason::Limit);
+    if !limit.is_empty() {
+        out.notes.push(format!(
+            "{} peaks that passed every test were left out by the limit of {} modes (the least prominent): {} Hz; raise --max-modes or narrow --band to see them",
+            limit.len(),
+            cfg.max_modes,
+            limit.join(", ")
+        ));
+    }
+    let lines = list(LeftOutReason::StationaryLine);
+    if !lines.is_empty() {
+        out.notes.push(format!(
+            "peaks at {} Hz were already there before the taps at the same level (mains hum, pickup or a fan): not modes",
+            lines.join(", ")
+        ));
+    }
+    let bg = list(LeftOutReason::Background);
+    if !bg.is_empty() {
+        out.notes.push(format!(
+            "peaks at {} Hz are not lifted {OVER_BACKGROUND_DB:.0} dB over the response without taps: not modes",
+            bg.join(", ")
+        ));
+    }
+    if out.incoherent_peaks > 0 {
+        out.notes.push(format!(
+            "{} peaks with coherence below what noise reaches by chance after {} averages were set aside as noise",
+            out.incoherent_peaks, cfg.averages
+        ));
+    }
+    let spikes = list(LeftOutReason::Spike);
+    if !spikes.is_empty() {
+        out.notes.push(format!(
+            "{} peaks narrower than a mode can be (under the windows' own width, Q over 1000, or no measurable width without a coherence) were set aside as noise or leakage",
+            spikes.len()
+        ));
+    }
 }

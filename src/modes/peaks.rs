@@ -74,14 +74,16 @@ fn prominence(db: &[f64], i: usize, range: &std::ops::Range<usize>) -> f64 {
     h - left_min.max(right_min)
 }
 
-/// Pick peaks in the configured band, strongest `max_modes` by prominence.
+/// Every peak in the configured band that stands `min_prominence_db` over its surroundings
+/// and `min_above_floor_db` over the noise floor, in frequency order (no limit on the
+/// count here: the mode finder applies it after its own tests).
 pub fn pick(freqs: &[f64], db: &[f64], cfg: &ModeConfig) -> Vec<Peak> {
     let range = band_range(freqs, cfg.band_hz);
     if range.len() < 3 {
         return Vec::new();
     }
     let floor = noise_floor(freqs, db, range.clone());
-    let mut peaks: Vec<Peak> = (range.start + 1..range.end - 1)
+    let peaks: Vec<Peak> = (range.start + 1..range.end - 1)
         .filter(|&i| db[i] > db[i - 1] && db[i] >= db[i + 1])
         .filter_map(|i| {
             let prominence_db = prominence(db, i, &range);
@@ -94,8 +96,5 @@ pub fn pick(freqs: &[f64], db: &[f64], cfg: &ModeConfig) -> Vec<Peak> {
                 })
         })
         .collect();
-    peaks.sort_by(|a, b| b.prominence_db.total_cmp(&a.prominence_db));
-    peaks.truncate(cfg.max_modes);
-    peaks.sort_by_key(|p| p.index);
     peaks
 }

@@ -7,7 +7,7 @@ pub mod recording;
 
 use crate::error::{Context, Error, Result};
 use crate::hits::{CheckConfig, TriggerConfig};
-use crate::modes::{Mode, ModeConfig};
+use crate::modes::{LeftOut, Mode, ModeConfig, ModeSearch};
 use crate::pipeline::{Analysis, HitSummary};
 use crate::signal::{ChannelInfo, Roles};
 use crate::spectra::{Basis, Curve, Estimator, Spectra, WindowConfig};
@@ -86,6 +86,12 @@ pub struct RunFile {
     pub isolation: Option<Isolation>,
     /// Things the reader of these numbers should know.
     pub notes: Vec<String>,
+    /// Peaks of the curve that are not listed as modes, each with its reason.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub left_out: Vec<LeftOut>,
+    /// Peaks whose coherence was below what noise reaches by chance: counted, not listed.
+    #[serde(default)]
+    pub incoherent_peaks: usize,
     /// Stream ranges `[start, end)` in samples where the trigger was disarmed: not searched
     /// for taps, also not on re-analysis.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
@@ -107,14 +113,15 @@ impl RunFile {
     pub fn from_analysis(
         a: &Analysis,
         spectra: &Spectra,
-        modes: &[Mode],
+        found: &ModeSearch,
         variant: Variant,
     ) -> Self {
+        let modes = &found.modes;
         let info = a.info();
         let cfg = a.config();
         let d = a.detector();
         let fft_len = (spectra.freqs.len() - 1) * 2;
-        let mut notes = Vec::new();
+        let mut notes = found.notes.clone();
         if modes
             .iter()
             .any(|m| m.flags.contains(&crate::modes::Flag::FewLines))
@@ -155,7 +162,7 @@ impl RunFile {
                 },
                 estimator: cfg.estimator,
                 basis: a.basis(),
-                band_hz: cfg.modes.band_hz,
+                band_hz: found.band_hz,
                 mode_search: cfg.modes.clone(),
             },
             recording: None,
@@ -171,6 +178,8 @@ impl RunFile {
             },
             isolation: None,
             notes,
+            left_out: found.left_out.clone(),
+            incoherent_peaks: found.incoherent_peaks,
             disarmed: a.disarmed().to_vec(),
         }
     }
@@ -310,8 +319,8 @@ pub fn write_run_files(
     recording: Option<(&Path, &str)>,
 ) -> Result<RunFile> {
     let spectra = analysis.spectra();
-    let modes = analysis.modes(&spectra);
-    let mut run = RunFile::from_analysis(analysis, &spectra, &modes, variant);
+    let found = analysis.search(&spectra);
+    let mut run = RunFile::from_analysis(analysis, &spectra, &found, variant);
     if let Some((wav, encoding)) = recording {
         run.recording = Some(RecordingRef {
             wav: relative_to(json_path, wav),

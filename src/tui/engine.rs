@@ -593,7 +593,8 @@ impl Engine {
         self.version += 1;
         let a = &self.analysis;
         let spectra = a.spectra();
-        let modes = a.modes(&spectra);
+        let found = a.search(&spectra);
+        let modes = found.modes.clone();
         let basis = a.basis();
         let curve = (spectra.hits > 0)
             .then(|| spectra.curve(basis))
@@ -639,7 +640,7 @@ impl Engine {
         let run = RunFile::from_analysis(
             a,
             &spectra,
-            &modes,
+            &found,
             Variant {
                 label: self.label.clone(),
                 note: String::new(),

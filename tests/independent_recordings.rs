@@ -1,0 +1,207 @@
+//! The analysis on recordings our simulator did not make: finite-element beams and a TM9 X
+//! frame, integrated exactly and passed through realistic chains (16-bit sound card with
+//! AC-coupled piezo and mains hum, 12-bit MEMS at 3.2 kHz), made by
+//! `tests/independent/make_recordings.py` (numpy 1.26.4, scipy 1.11.4; its FE
+//! eigenfrequencies are checked there against Blevins 1979, *Formulas for Natural Frequency
+//! and Mode Shape*, Table 8-1, clamped-free, values from memory). The truth is the FE
+//! model's, read from each `NAME.truth.json`; the tests read only the committed files.
+
+use tapmodes::hits::Verdict;
+use tapmodes::modes::ModeSearch;
+use tapmodes::pipeline::{Analysis, AnalysisConfig, analyse_source};
+use tapmodes::signal::RoleChoice;
+use tapmodes::source::Source;
+use tapmodes::source::wav::WavSource;
+
+struct Truth {
+    modes: Vec<(f64, f64)>,
+    hum: Vec<f64>,
+    taps: Vec<(f64, String)>,
+}
+
+fn truth(name: &str) -> Truth {
+    let path = format!(
+        "{}/tests/independent/{name}.truth.json",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    let num = |x: &serde_json::Value| x.as_f64().unwrap();
+    Truth {
+        modes: v["modes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|m| (num(&m["frequency_hz"]), num(&m["damping_ratio"])))
+            .collect(),
+        hum: v["hum_hz"].as_array().unwrap().iter().map(num).collect(),
+        taps: v["taps"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|t| (num(&t["time_s"]), t["kind"].as_str().unwrap().to_string()))
+            .collect(),
+    }
+}
+
+fn analyse(name: &str) -> (Analysis, ModeSearch, f64) {
+    let path = format!(
+        "{}/tests/independent/{name}.wav",
+        env!("CARGO_MANIFEST_DIR")
+    );
+    let mut src = WavSource::open(std::path::Path::new(&path)).unwrap();
+    let fs = src.info().sample_rate;
+    let roles = RoleChoice::default().resolve(src.info()).unwrap();
+    let a = analyse_source(&mut src, roles, AnalysisConfig::default(), false).unwrap();
+    let found = a.search(&a.spectra());
+    (a, found, fs)
+}
+
+/// The reported mode nearest `f`, as (frequency, damping).
+fn nearest(found: &ModeSearch, f: f64) -> (f64, Option<f64>) {
+    let m = found
+        .modes
+        .iter()
+        .min_by(|a, b| {
+            (a.frequency_hz - f)
+                .abs()
+                .total_cmp(&(b.frequency_hz - f).abs())
+        })
+        .unwrap_or_else(|| panic!("no modes at all"));
+    (m.frequency_hz, m.damping_ratio)
+}
+
+fn rel(a: f64, b: f64) -> f64 {
+    (a - b).abs() / b
+}
+
+/// No reported mode sits on a mains line.
+fn no_hum_modes(found: &ModeSearch, t: &Truth) {
+    for h in &t.hum {
+        for m in &found.modes {
+            assert!(
+                (m.frequency_hz - h).abs() > 1.5,
+                "mode {:.2} Hz on the {h} Hz mains line",
+                m.frequency_hz
+            );
+        }
+    }
+}
+
+/// The verdict of the hit whose trigger is within 5 ms of `time_s`.
+fn verdict_at(a: &Analysis, fs: f64, time_s: f64) -> Option<Verdict> {
+    a.hits()
+        .iter()
+        .find(|h| (h.trigger_sample as f64 / fs - time_s).abs() < 0.005)
+        .map(|h| h.verdict)
+}
+
+#[test]
+fn frame_twist_mode_at_48k_with_hum_and_a_force_channel() {
+    // The 70-80 Hz twist mode that limits a large craft's tune, through a 16-bit sound
+    // card with a piezo and 50 Hz hum, with the default band (once missed in 3 of 3 seeds).
+    for name in ["tm9-frame-48k-s1", "tm9-frame-48k-s2"] {
+        let t = truth(name);
+        let (_, found, _) = analyse(name);
+        let twist = t.modes.iter().find(|m| m.0 > 70.0 && m.0 < 80.0).unwrap();
+        let (f, z) = nearest(&found, twist.0);
+        assert!(rel(f, twist.0) < 5e-4, "{name}: {f} vs {}", twist.0);
+        // Its weak neighbour (3-4 dB out of the twist mode's flank) is found too.
+        let side = t.modes.iter().find(|m| m.0 > 85.0 && m.0 < 95.0).unwrap();
+        assert!(
+            rel(nearest(&found, side.0).0, side.0) < 1e-3,
+            "{name}: {}",
+            side.0
+        );
+        let z = z.expect("twist damping");
+        assert!(rel(z, twist.1) < 0.1, "{name}: damping {z} vs {}", twist.1);
+        no_hum_modes(&found, &t);
+    }
+}
+
+#[test]
+fn every_tap_of_the_frame_recording_has_its_verdict() {
+    let name = "tm9-frame-48k-s1";
+    let t = truth(name);
+    let (a, _, fs) = analyse(name);
+    for (time, kind) in &t.taps {
+        let expected = match kind.as_str() {
+            "clean" => Verdict::Accepted,
+            "double" => Verdict::DoubleHit,
+            "clipped" => Verdict::Overload,
+            "cut_by_end" => Verdict::CutShort,
+            // 0.5 s after the clipped tap: inside that record, which is judged as a whole.
+            "too_soon" => continue,
+            other => panic!("unknown tap kind {other}"),
+        };
+        assert_eq!(
+            verdict_at(&a, fs, *time),
+            Some(expected),
+            "{kind} tap at {time} s"
+        );
+    }
+}
+
+#[test]
+fn response_only_piezo_at_48k() {
+    // No hammer sensor: no clean tap may be taken for a double hit (the old onset test
+    // rejected most), hum is not a mode, and the first two bending modes are found.
+    let name = "tube-cantilever-48k-mono";
+    let t = truth(name);
+    let (a, found, fs) = analyse(name);
+    for (i, (time, kind)) in t.taps.iter().enumerate() {
+        // A clean tap with another tap inside its 1 s record is rightly a double hit.
+        let crowded = t.taps.get(i + 1).is_some_and(|n| n.0 - time < 1.0);
+        if kind == "clean" && !crowded {
+            assert_eq!(
+                verdict_at(&a, fs, *time),
+                Some(Verdict::Accepted),
+                "at {time}"
+            );
+        }
+    }
+    no_hum_modes(&found, &t);
+    for truth_mode in &t.modes[..2] {
+        let (f, _) = nearest(&found, truth_mode.0);
+        assert!(rel(f, truth_mode.0) < 2e-3, "{f} vs {}", truth_mode.0);
+    }
+    assert!(
+        found.notes.iter().any(|n| n.contains("50.0 Hz")),
+        "{:?}",
+        found.notes
+    );
+}
+
+#[test]
+fn response_only_mems_at_3k2() {
+    // 12-bit MEMS with bias drift: clean taps pass, the double tap 13 ms apart is caught,
+    // the first bending mode is found.
+    let name = "strip-cantilever-mems-3k2";
+    let t = truth(name);
+    let (a, found, fs) = analyse(name);
+    for (time, kind) in &t.taps {
+        let v = verdict_at(&a, fs, *time);
+        match kind.as_str() {
+            "clean" => assert_eq!(v, Some(Verdict::Accepted), "clean at {time}"),
+            "double" => assert_eq!(v, Some(Verdict::DoubleHit), "double at {time}"),
+            _ => {}
+        }
+    }
+    let (f, _) = nearest(&found, t.modes[0].0);
+    assert!(rel(f, t.modes[0].0) < 1e-3, "{f} vs {}", t.modes[0].0);
+    // The frame through the same chain: nine modes below 650 Hz, the twist mode found.
+    let name = "tm9-frame-mems-3k2";
+    let t = truth(name);
+    let (a, found, fs) = analyse(name);
+    let clean = t.taps.iter().filter(|(_, k)| k == "clean");
+    for (time, _) in clean {
+        assert_eq!(
+            verdict_at(&a, fs, *time),
+            Some(Verdict::Accepted),
+            "at {time}"
+        );
+    }
+    let twist = t.modes.iter().find(|m| m.0 > 70.0 && m.0 < 80.0).unwrap();
+    let (f, _) = nearest(&found, twist.0);
+    assert!(rel(f, twist.0) < 5e-3, "{f} vs {}", twist.0);
+}
