@@ -58,7 +58,9 @@ pub struct CompareArgs {
 /// `A=B` or `RUN:A=B` with positive integers.
 pub fn parse_rule(s: &str) -> std::result::Result<PairRule, String> {
     let bad = || {
-        format!("'{s}' is not a pairing; write A=B (baseline mode A, variant mode B, from 1) or RUN:A=B")
+        format!(
+            "'{s}' is not a pairing; write A=B (baseline mode A, variant mode B, from 1) or RUN:A=B"
+        )
     };
     let (run, pair) = match s.split_once(':') {
         Some((r, p)) => (Some(r), p),

@@ -136,9 +136,12 @@ impl Costs<'_> {
             return f64::INFINITY;
         }
         let s = |c: &Candidate| c.sign;
-        let (Some(a0), Some(a1), Some(b0), Some(b1)) =
-            (s(&self.a[i]), s(&self.a[i + 1]), s(&self.b[j]), s(&self.b[j + 1]))
-        else {
+        let (Some(a0), Some(a1), Some(b0), Some(b1)) = (
+            s(&self.a[i]),
+            s(&self.a[i + 1]),
+            s(&self.b[j]),
+            s(&self.b[j + 1]),
+        ) else {
             return f64::INFINITY;
         };
         if a0 == a1 || b0 == b1 || a0 != b1 {

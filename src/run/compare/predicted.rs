@@ -29,8 +29,8 @@ pub struct PredictedMode {
 /// Read a prediction CSV. Any error names the file and line in one sentence.
 pub fn read_predictions(path: &Path) -> Result<Vec<PredictedMode>> {
     let shown = path.display();
-    let text =
-        std::fs::read_to_string(path).map_err(|e| Error::new(format!("cannot read '{shown}': {e}")))?;
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| Error::new(format!("cannot read '{shown}': {e}")))?;
     parse_predictions(&text, &shown.to_string())
 }
 
@@ -77,9 +77,8 @@ pub fn parse_predictions(text: &str, name: &str) -> Result<Vec<PredictedMode>> {
     let mut out = Vec::new();
     for (line, f) in rows.iter().skip(usize::from(header)) {
         let get = |c: Option<usize>| c.and_then(|c| f.get(c)).filter(|s| !s.is_empty());
-        let fs = get(fcol).ok_or_else(|| {
-            Error::new(format!("'{name}' line {line}: no frequency"))
-        })?;
+        let fs =
+            get(fcol).ok_or_else(|| Error::new(format!("'{name}' line {line}: no frequency")))?;
         let hz = fs
             .parse::<f64>()
             .ok()
@@ -92,13 +91,20 @@ pub fn parse_predictions(text: &str, name: &str) -> Result<Vec<PredictedMode>> {
         let damping = match get(zcol) {
             None => None,
             Some(zs) => {
-                let v = zs.parse::<f64>().ok().filter(|v| v.is_finite() && *v >= 0.0);
+                let v = zs
+                    .parse::<f64>()
+                    .ok()
+                    .filter(|v| v.is_finite() && *v >= 0.0);
                 let v = v.map(|v| if zpct { v / 100.0 } else { v });
                 match v {
                     Some(z) if z < 1.0 => Some(z),
                     _ => crate::fail!(
                         "'{name}' line {line}: '{zs}' is not a damping {} (write 0.02 for 2 %)",
-                        if zpct { "in percent below 100" } else { "ratio: a fraction below 1" }
+                        if zpct {
+                            "in percent below 100"
+                        } else {
+                            "ratio: a fraction below 1"
+                        }
                     ),
                 }
             }
@@ -283,13 +289,21 @@ mod tests {
 
     #[test]
     fn bad_rows_are_named() {
-        let e = parse_predictions("140\nabc\n", "p.csv").unwrap_err().to_string();
+        let e = parse_predictions("140\nabc\n", "p.csv")
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("line 2") && e.contains("'abc'"), "{e}");
-        let e = parse_predictions("label,hz\nx,1\n", "p.csv").unwrap_err().to_string();
+        let e = parse_predictions("label,hz\nx,1\n", "p.csv")
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("frequency_hz"), "{e}");
-        let e = parse_predictions("140,a,1.5\n", "p.csv").unwrap_err().to_string();
+        let e = parse_predictions("140,a,1.5\n", "p.csv")
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("0.02 for 2 %"), "{e}");
-        let e = parse_predictions("# nothing\n", "p.csv").unwrap_err().to_string();
+        let e = parse_predictions("# nothing\n", "p.csv")
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("no predicted modes"), "{e}");
         let e = parse_predictions("-5\n", "p.csv").unwrap_err().to_string();
         assert!(e.contains("'-5'"), "{e}");

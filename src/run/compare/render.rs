@@ -1,7 +1,7 @@
 //! The comparison as text: an 80-column table with a legend, and CSV for spreadsheets.
 
 use super::predicted::PredictionReport;
-use super::{Comparison, MatchedMode, MountComparison, Verdict, VariantComparison};
+use super::{Comparison, MatchedMode, MountComparison, VariantComparison, Verdict};
 use crate::error::{Error, Result};
 
 /// Widest line of the table.
@@ -38,15 +38,23 @@ fn verdict(v: Option<Verdict>) -> &'static str {
     v.map_or("-", Verdict::short)
 }
 
-const HEAD: &str =
-    "   pair base Hz  var Hz   df %   k eq  k mass  zb %  zv % f      z      conf";
+const HEAD: &str = "   pair base Hz  var Hz   df %   k eq  k mass  zb %  zv % f      z      conf";
 
 fn row(m: &MatchedMode) -> String {
-    let pair = format!("{}-{}{}", m.baseline_mode, m.variant_mode, m.pairing.short());
+    let pair = format!(
+        "{}-{}{}",
+        m.baseline_mode,
+        m.variant_mode,
+        m.pairing.short()
+    );
     let conf = format!(
         "{:.2}{}",
         m.confidence,
-        if m.residue_sign_agrees == Some(false) { "!" } else { "" }
+        if m.residue_sign_agrees == Some(false) {
+            "!"
+        } else {
+            ""
+        }
     );
     let line = format!(
         "  {:>5} {:>7.1} {:>7.1} {:>+6.1} {:>6.3} {:>7} {:>5} {:>5} {:<6} {:<6} {:<5}",
@@ -69,7 +77,7 @@ fn row(m: &MatchedMode) -> String {
 fn mount_rows(c: &MountComparison, base: &str, var: &str) -> String {
     let mut s = String::new();
     if let (Some(a), Some(b)) = (&c.baseline, &c.variant) {
-        s += &format!(
+        let line = format!(
             "  {:>5} {:>7.1} {:>7.1} {:>+6.1} {:>6.3} {:>7} {:>5.2} {:>5.2} {:<6} {:<6}",
             "mount",
             a.natural_frequency_hz,
@@ -81,10 +89,9 @@ fn mount_rows(c: &MountComparison, base: &str, var: &str) -> String {
             100.0 * b.damping_ratio,
             verdict(c.frequency_verdict),
             verdict(c.damping_verdict),
-        )
-        .trim_end()
-        .to_string()
-            + "\n";
+        );
+        s += line.trim_end();
+        s.push('\n');
         let poor = |e: f64| if e > 0.3 { " (poor fit)" } else { "" };
         s += &wrap(
             &format!(
@@ -139,13 +146,13 @@ fn variant_block(c: &Comparison, v: &VariantComparison) -> String {
     if let Some(mc) = &v.mount {
         s += &mount_rows(mc, &c.baseline, &v.label);
     }
-    for (who, list) in [(&c.baseline, &v.unpaired_baseline), (&v.label, &v.unpaired_variant)] {
+    for (who, list) in [
+        (&c.baseline, &v.unpaired_baseline),
+        (&v.label, &v.unpaired_variant),
+    ] {
         for u in list {
             s += &wrap(
-                &format!(
-                    "mode {} at {:.1} Hz: {}",
-                    u.mode, u.frequency_hz, u.reason
-                ),
+                &format!("mode {} at {:.1} Hz: {}", u.mode, u.frequency_hz, u.reason),
                 &format!("  only in {who}: "),
                 "    ",
             );
@@ -183,7 +190,13 @@ fn predictions_block(p: &PredictionReport) -> String {
         );
         s += "   pred label        pred Hz  meas Hz  diff %  agree  zp %  zm %  conf\n";
         for q in &r.pairs {
-            let label: String = q.label.clone().unwrap_or_default().chars().take(12).collect();
+            let label: String = q
+                .label
+                .clone()
+                .unwrap_or_default()
+                .chars()
+                .take(12)
+                .collect();
             s += &format!(
                 "  {:>2}-{:<2} {:<12} {:>7.1} {:>8.1} {:>+7.1}  {:<5} {:>5} {:>5}  {:.2}\n",
                 q.predicted_mode,
@@ -206,7 +219,9 @@ fn predictions_block(p: &PredictionReport) -> String {
                     format!(
                         "{}{} {:.1} Hz",
                         n.predicted_mode,
-                        n.label.as_ref().map_or(String::new(), |l| format!(" ({l})")),
+                        n.label
+                            .as_ref()
+                            .map_or(String::new(), |l| format!(" ({l})")),
                         n.frequency_hz
                     )
                 })
@@ -214,7 +229,11 @@ fn predictions_block(p: &PredictionReport) -> String {
             s += &wrap(&list.join(", "), "  predicted, not seen: ", "    ");
         }
         if !r.not_predicted_hz.is_empty() {
-            let list: Vec<String> = r.not_predicted_hz.iter().map(|f| format!("{f:.1} Hz")).collect();
+            let list: Vec<String> = r
+                .not_predicted_hz
+                .iter()
+                .map(|f| format!("{f:.1} Hz"))
+                .collect();
             s += &wrap(&list.join(", "), "  measured, not predicted: ", "    ");
         }
     }
@@ -254,7 +273,8 @@ pub fn render_table(c: &Comparison) -> String {
     s += "  f, z = verdict on the frequency and damping change: real = beyond the\n";
     s += "    repeatability floor and the hit-to-hit spread (Welch test, 95 %);\n";
     s += "    real* = beyond the floor, no spread stored; spread = within the\n";
-    s += "    hit-to-hit spread; floor = within the repeatability floor\n";
+    s += "    hit-to-hit spread; floor = within the repeatability floor; doubt =\n";
+    s += "    beyond the floor but a flagged estimate (low coherence, few lines...)\n";
     s += &wrap(
         &format!(
             "floor: {:.1} % in frequency, {:.0} % of the damping ratio ({}); pairs within {:.0} % of each other",
@@ -312,7 +332,8 @@ pub fn render_csv(c: &Comparison) -> Result<String> {
                 m.damping_verdict.as_ref().map_or(String::new(), |v| ser(v)),
                 ser(&m.pairing),
                 format!("{:.4}", m.confidence),
-                m.residue_sign_agrees.map_or(String::new(), |b| b.to_string()),
+                m.residue_sign_agrees
+                    .map_or(String::new(), |b| b.to_string()),
                 String::new(),
             ])
             .map_err(enc)?;
@@ -323,9 +344,23 @@ pub fn render_csv(c: &Comparison) -> Result<String> {
         ] {
             for u in list {
                 let (bm, vm, bh, vh, bz, vz) = if base_side {
-                    (u.mode.to_string(), String::new(), format!("{:.4}", u.frequency_hz), String::new(), f(u.damping_ratio), String::new())
+                    (
+                        u.mode.to_string(),
+                        String::new(),
+                        format!("{:.4}", u.frequency_hz),
+                        String::new(),
+                        f(u.damping_ratio),
+                        String::new(),
+                    )
                 } else {
-                    (String::new(), u.mode.to_string(), String::new(), format!("{:.4}", u.frequency_hz), String::new(), f(u.damping_ratio))
+                    (
+                        String::new(),
+                        u.mode.to_string(),
+                        String::new(),
+                        format!("{:.4}", u.frequency_hz),
+                        String::new(),
+                        f(u.damping_ratio),
+                    )
                 };
                 let mut r = vec![v.label.clone(), row.into(), bm, vm, bh, vh];
                 r.extend(std::iter::repeat_n(String::new(), 3));
@@ -352,8 +387,12 @@ pub fn render_csv(c: &Comparison) -> Result<String> {
                 format!("{:.6}", b.damping_ratio),
                 f((a.damping_ratio > 0.0)
                     .then(|| 100.0 * (b.damping_ratio - a.damping_ratio) / a.damping_ratio)),
-                mc.frequency_verdict.as_ref().map_or(String::new(), |v| ser(v)),
-                mc.damping_verdict.as_ref().map_or(String::new(), |v| ser(v)),
+                mc.frequency_verdict
+                    .as_ref()
+                    .map_or(String::new(), |v| ser(v)),
+                mc.damping_verdict
+                    .as_ref()
+                    .map_or(String::new(), |v| ser(v)),
                 String::new(),
                 String::new(),
                 String::new(),
