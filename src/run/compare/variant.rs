@@ -80,7 +80,8 @@ pub(super) fn compare_one(
         pins: rules.0.clone(),
         forbids: rules.1.clone(),
     };
-    // A sensor mounted the other way round flips every sign: compare signs after undoing it.
+    // A sensor mounted the other way round flips every sign: when three or more in-order
+    // pairs all disagree and none agrees, compare signs after undoing it.
     let unsigned = |c: &[Candidate]| -> Vec<Candidate> {
         c.iter()
             .map(|c| Candidate {
@@ -98,7 +99,7 @@ pub(super) fn compare_one(
                 Some(_) => (y, n + 1),
                 None => (y, n),
             });
-    if differ >= 2 && differ > agree {
+    if differ >= 3 && agree == 0 {
         for c in cb.iter_mut() {
             c.sign = c.sign.map(|s| -s);
         }
