@@ -20,6 +20,7 @@ while read -r label preset seed extra; do
 done <<'LIST'
 arm-solid tm9-arm-solid 101
 arm-holed tm9-arm-holed 102
+arm-holed-repeat tm9-arm-holed 106
 arm-braced tm9-arm-braced 103
 stack-soft tm9-stack-soft 104 --response-channel 2 --base-channel 1
 stack-firm tm9-stack-firm 105 --response-channel 2 --base-channel 1

@@ -9,7 +9,9 @@ use tapmodes::run::compare::matching::How;
 use tapmodes::run::compare::{CompareOptions, Comparison, Verdict, compare_with, stiffness_ratio};
 
 fn demo(name: &str) -> RunFile {
-    let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("recordings").join(name);
+    let p = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("recordings")
+        .join(name);
     RunFile::load(&p).unwrap()
 }
 
@@ -68,7 +70,11 @@ fn common_shifts_up_to_40_percent_pair_in_order() {
             let a: Vec<(f64, i8)> = base.iter().map(|&f| (f, 0)).collect();
             let b: Vec<(f64, i8)> = base.iter().map(|&f| (f * (1.0 + shift), 0)).collect();
             let c = run_compare(run_with("a", &a), run_with("b", &b));
-            assert_eq!(pairs(&c), all_in_order(base.len()), "shift {shift} on {base:?}");
+            assert_eq!(
+                pairs(&c),
+                all_in_order(base.len()),
+                "shift {shift} on {base:?}"
+            );
             let v = &c.variants[0];
             assert!(v.only_in_baseline.is_empty() && v.only_in_variant.is_empty());
             for m in &v.matched {
@@ -95,9 +101,17 @@ fn the_brace_shifts_of_the_demo_pair_mode_by_mode() {
     // -> 171/262/655/1262 Hz, recordings/arm-*.truth.json).
     let c = run_compare(demo("arm-holed.json"), demo("arm-braced.json"));
     assert_eq!(pairs(&c), all_in_order(4));
-    let truth = [(139.0, 171.0), (214.0, 262.0), (575.0, 655.0), (1092.0, 1262.0)];
+    let truth = [
+        (139.0, 171.0),
+        (214.0, 262.0),
+        (575.0, 655.0),
+        (1092.0, 1262.0),
+    ];
     for (m, (fa, fb)) in c.variants[0].matched.iter().zip(truth) {
-        assert!((m.frequency_change_pct - 100.0 * (fb / fa - 1.0)).abs() < 0.2, "{m:?}");
+        assert!(
+            (m.frequency_change_pct - 100.0 * (fb / fa - 1.0)).abs() < 0.2,
+            "{m:?}"
+        );
         assert!(m.stiffness_ratio > 1.2, "the brace stiffens: {m:?}");
         assert_eq!(m.frequency_verdict, Verdict::Real);
     }
@@ -169,10 +183,20 @@ fn two_repeats_of_one_part_show_no_real_change() {
     let base = [139.0, 214.0, 575.0, 1092.0];
     let drift = [0.003, -0.002, 0.004, -0.001];
     let a: Vec<(f64, i8)> = base.iter().map(|&f| (f, 0)).collect();
-    let b: Vec<(f64, i8)> = base.iter().zip(drift).map(|(&f, d)| (f * (1.0 + d), 0)).collect();
+    let b: Vec<(f64, i8)> = base
+        .iter()
+        .zip(drift)
+        .map(|(&f, d)| (f * (1.0 + d), 0))
+        .collect();
     let runs = [
-        ("a.json".to_string(), with_spread(run_with("first", &a), 0.01)),
-        ("b.json".to_string(), with_spread(run_with("again", &b), 0.01)),
+        (
+            "a.json".to_string(),
+            with_spread(run_with("first", &a), 0.01),
+        ),
+        (
+            "b.json".to_string(),
+            with_spread(run_with("again", &b), 0.01),
+        ),
     ];
     let o = CompareOptions {
         repeats: true,
@@ -180,9 +204,21 @@ fn two_repeats_of_one_part_show_no_real_change() {
     };
     let c = compare_with(&runs, &o).unwrap();
     let v = &c.variants[0];
-    assert!(v.matched.iter().all(|m| m.frequency_change_significant == Some(true)));
-    assert!(v.matched.iter().all(|m| m.frequency_verdict == Verdict::WithinFloor));
-    assert!(v.summary.starts_with("no real frequency change"), "{}", v.summary);
+    assert!(
+        v.matched
+            .iter()
+            .all(|m| m.frequency_change_significant == Some(true))
+    );
+    assert!(
+        v.matched
+            .iter()
+            .all(|m| m.frequency_verdict == Verdict::WithinFloor)
+    );
+    assert!(
+        v.summary.starts_with("no real frequency change"),
+        "{}",
+        v.summary
+    );
     let r = c.repeatability.as_ref().unwrap();
     assert!((r.largest_frequency_change_pct - 0.4).abs() < 1e-6);
     assert!(r.implied_floor_frequency_pct >= 0.4 && r.implied_floor_frequency_pct <= 0.6);
@@ -192,7 +228,12 @@ fn two_repeats_of_one_part_show_no_real_change() {
         ..CompareOptions::default()
     };
     let c = compare_with(&runs, &tight).unwrap();
-    assert!(c.variants[0].matched.iter().any(|m| m.frequency_verdict == Verdict::Real));
+    assert!(
+        c.variants[0]
+            .matched
+            .iter()
+            .any(|m| m.frequency_verdict == Verdict::Real)
+    );
 }
 
 #[test]
@@ -206,7 +247,10 @@ fn soft_and_firm_stack_report_the_mount_shift() {
     assert!((df - 100.0 * (152.0 / 88.0 - 1.0)).abs() < 10.0, "{df}");
     assert!(mount.frequency_verdict.unwrap().is_real());
     assert!(v.summary.contains("mount +"), "{}", v.summary);
-    assert!(v.matched.iter().all(|m| !m.frequency_verdict.is_real()), "{v:?}");
+    assert!(
+        v.matched.iter().all(|m| !m.frequency_verdict.is_real()),
+        "{v:?}"
+    );
     // A band of interest adds the isolation from both mount models.
     let o = CompareOptions {
         isolation_band: Some((200.0, 400.0)),
@@ -217,8 +261,17 @@ fn soft_and_firm_stack_report_the_mount_shift() {
         ("f".to_string(), demo("stack-firm.json")),
     ];
     let c = compare_with(&runs, &o).unwrap();
-    let iso = c.variants[0].mount.as_ref().unwrap().isolation.clone().unwrap();
-    assert!(iso.model_change_db > 0.0, "the firmer mount isolates less: {iso:?}");
+    let iso = c.variants[0]
+        .mount
+        .as_ref()
+        .unwrap()
+        .isolation
+        .clone()
+        .unwrap();
+    assert!(
+        iso.model_change_db > 0.0,
+        "the firmer mount isolates less: {iso:?}"
+    );
 }
 
 #[test]
@@ -251,7 +304,10 @@ fn unpaired_modes_are_said() {
     let v = &c.variants[0];
     assert_eq!(v.only_in_variant, vec![400.0]);
     assert_eq!(v.unpaired_variant[0].mode, 3);
-    assert!(v.unpaired_variant[0].reason.contains("no mode of 'a'"), "{v:?}");
+    assert!(
+        v.unpaired_variant[0].reason.contains("no mode of 'a'"),
+        "{v:?}"
+    );
     let table = tapmodes::run::compare::render::render_table(&c);
     assert!(table.contains("only in b: mode 3 at 400.0 Hz"), "{table}");
     for line in table.lines() {

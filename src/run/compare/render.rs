@@ -257,7 +257,7 @@ pub fn render_table(c: &Comparison) -> String {
                 r.rms_frequency_change_pct,
                 r.largest_frequency_change_pct,
                 r.largest_damping_change_pct
-                    .map_or(String::new(), |d| format!(" (damping: largest {d:.0} %)"))
+                    .map_or(String::new(), |d| format!(" (damping: largest {d:.1} %)"))
             ),
             "repeatability: ",
             "  ",

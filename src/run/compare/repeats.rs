@@ -42,8 +42,8 @@ pub(super) fn repeatability(variants: &[VariantComparison]) -> Repeatability {
     } else {
         format!(
             "these repeats imply a floor of {ff:.1} % in frequency{}; pass --floor {ff:.1}{} when comparing variants measured the same way",
-            zs.map_or(String::new(), |z| format!(" and {:.0} % in damping", z.2)),
-            zs.map_or(String::new(), |z| format!(" --floor-damping {:.0}", z.2))
+            zs.map_or(String::new(), |z| format!(" and {:.1} % in damping", z.2)),
+            zs.map_or(String::new(), |z| format!(" --floor-damping {:.1}", z.2))
         )
     };
     if f.len() < 4 && !f.is_empty() {
