@@ -329,7 +329,7 @@ pub fn render_csv(c: &Comparison) -> Result<String> {
                 f(m.variant_damping),
                 f(m.damping_change_pct),
                 ser(&m.frequency_verdict),
-                m.damping_verdict.as_ref().map_or(String::new(), |v| ser(v)),
+                m.damping_verdict.as_ref().map_or(String::new(), ser),
                 ser(&m.pairing),
                 format!("{:.4}", m.confidence),
                 m.residue_sign_agrees
@@ -387,12 +387,8 @@ pub fn render_csv(c: &Comparison) -> Result<String> {
                 format!("{:.6}", b.damping_ratio),
                 f((a.damping_ratio > 0.0)
                     .then(|| 100.0 * (b.damping_ratio - a.damping_ratio) / a.damping_ratio)),
-                mc.frequency_verdict
-                    .as_ref()
-                    .map_or(String::new(), |v| ser(v)),
-                mc.damping_verdict
-                    .as_ref()
-                    .map_or(String::new(), |v| ser(v)),
+                mc.frequency_verdict.as_ref().map_or(String::new(), ser),
+                mc.damping_verdict.as_ref().map_or(String::new(), ser),
                 String::new(),
                 String::new(),
                 String::new(),
