@@ -18,9 +18,10 @@ while read -r label preset seed extra; do
   rm -f "$out/.truth-tmp.wav"
   echo "made $out/$label.{wav,json,csv,truth.json}"
 done <<'LIST'
-arm-solid tm9-arm-solid 101
-arm-holed tm9-arm-holed 102
-arm-braced tm9-arm-braced 103
+arm-solid tm9-arm-solid 101 --mass 41.0
+arm-holed tm9-arm-holed 102 --mass 36.5
+arm-holed-repeat tm9-arm-holed 106 --mass 36.5
+arm-braced tm9-arm-braced 103 --mass 44.0
 stack-soft tm9-stack-soft 104 --response-channel 2 --base-channel 1
 stack-firm tm9-stack-firm 105 --response-channel 2 --base-channel 1
 LIST

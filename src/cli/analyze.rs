@@ -27,6 +27,10 @@ pub struct AnalyzeArgs {
     /// Free-text note stored with the variant.
     #[arg(long, default_value = "", value_name = "TEXT")]
     pub note: String,
+    /// Mass of the part as tested, in grams: stored with the variant for the mass-corrected
+    /// stiffness ratio of `compare` (re-analysing a run file keeps its mass unless given).
+    #[arg(long, value_name = "GRAMS", value_parser = super::args::parse_mass)]
+    pub mass: Option<f64>,
     /// Also print every hit with its verdict.
     #[arg(long)]
     pub hits: bool,
@@ -66,7 +70,7 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("json"));
     let out = a.out.clone().unwrap_or_else(|| default_out(&a.input));
-    let (analysis, wav, variant) = if is_json {
+    let (analysis, wav, mut variant) = if is_json {
         reanalyse(&a.input)?
     } else {
         let choice = a.channels.role_choice();
@@ -80,9 +84,13 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
             Variant {
                 label,
                 note: a.note.clone(),
+                mass_g: None,
             },
         )
     };
+    if a.mass.is_some() {
+        variant.mass_g = a.mass;
+    }
     finish(&analysis, variant, &out, &wav, a.hits, a.isolation)
 }
 

@@ -201,6 +201,15 @@ impl AnalysisArgs {
     }
 }
 
+/// `--mass GRAMS`: a positive, finite mass in grams.
+pub fn parse_mass(s: &str) -> std::result::Result<f64, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|v| v.is_finite() && *v > 0.0)
+        .ok_or_else(|| format!("'{s}' is not a mass in grams (a positive number, e.g. 41.5)"))
+}
+
 fn positive(v: f64, what: &str) -> Result<f64> {
     if v > 0.0 && v.is_finite() {
         Ok(v)

@@ -29,6 +29,10 @@ pub struct CaptureArgs {
     /// Free-text note stored with the variant.
     #[arg(long, default_value = "", value_name = "TEXT")]
     pub note: String,
+    /// Mass of the part as tested, in grams: stored with the variant for the mass-corrected
+    /// stiffness ratio of `compare`.
+    #[arg(long, value_name = "GRAMS", value_parser = super::args::parse_mass)]
+    pub mass: Option<f64>,
     #[command(flatten)]
     pub channels: ChannelArgs,
     #[command(flatten)]
@@ -78,6 +82,7 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
     let variant = Variant {
         label: a.variant.clone(),
         note: a.note.clone(),
+        mass_g: a.mass,
     };
     let stop = Arc::new(AtomicBool::new(false));
     {

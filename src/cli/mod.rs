@@ -1,5 +1,6 @@
 //! Command-line front end: argument definitions and dispatch to the library.
 
+pub mod amend;
 pub mod analyze;
 pub mod args;
 pub mod bench;
@@ -39,6 +40,8 @@ pub enum Command {
     Analyze(Box<analyze::AnalyzeArgs>),
     /// Compare the mode lists of variants against the first one.
     Compare(compare::CompareArgs),
+    /// Change a run file's label, note or mass (grams) after the fact.
+    Amend(amend::AmendArgs),
     /// Capture hits live (serial, sound card, replay or the simulated bench) without the app.
     Capture(Box<capture::CaptureArgs>),
     /// List serial ports.
@@ -56,6 +59,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Some(Command::Analyze(a)) => analyze::run(&a),
         Some(Command::Compare(a)) => compare::run(&a),
         Some(Command::Capture(a)) => capture::run(&a),
+        Some(Command::Amend(a)) => amend::run(&a),
         Some(Command::Ports) => ports::ports(),
         Some(Command::Devices) => ports::devices(),
         Some(Command::Bench(a)) => bench::run(&a),

@@ -21,6 +21,10 @@ pub const SCHEMA_VERSION: u32 = 1;
 pub struct Variant {
     pub label: String,
     pub note: String,
+    /// Mass of the part as tested, in grams (given with `--mass` at capture or analysis, or
+    /// later with `tapmodes amend`); used for the mass-corrected stiffness ratio.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub mass_g: Option<f64>,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

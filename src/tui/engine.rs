@@ -523,6 +523,7 @@ impl Engine {
                 "recorded with the terminal app from {}",
                 self.setup.info.source
             ),
+            mass_g: None,
         };
         let wav = self.wav_path.clone();
         let encoding = self
@@ -644,6 +645,7 @@ impl Engine {
             Variant {
                 label: self.label.clone(),
                 note: String::new(),
+                mass_g: None,
             },
         );
         AnalysisSnap {

@@ -1,0 +1,456 @@
+//! The comparison as text: an 80-column table with a legend, and CSV for spreadsheets.
+
+use super::predicted::PredictionReport;
+use super::{Comparison, MatchedMode, MountComparison, VariantComparison, Verdict};
+use crate::error::{Error, Result};
+
+/// Widest line of the table.
+pub const WIDTH: usize = 80;
+
+/// Word-wrap `text` to `WIDTH`, first line prefixed by `first`, the rest by `rest`.
+fn wrap(text: &str, first: &str, rest: &str) -> String {
+    let mut out = String::new();
+    let mut line = first.to_string();
+    let mut empty = true;
+    for w in text.split_whitespace() {
+        if !empty && line.chars().count() + 1 + w.chars().count() > WIDTH {
+            out += line.trim_end();
+            out.push('\n');
+            line = rest.to_string();
+            empty = true;
+        }
+        if !empty {
+            line.push(' ');
+        }
+        line += w;
+        empty = false;
+    }
+    out += line.trim_end();
+    out.push('\n');
+    out
+}
+
+fn pct(z: Option<f64>) -> String {
+    z.map_or("-".into(), |z| format!("{:.2}", 100.0 * z))
+}
+
+fn verdict(v: Option<Verdict>) -> &'static str {
+    v.map_or("-", Verdict::short)
+}
+
+const HEAD: &str = "   pair base Hz  var Hz   df %   k eq  k mass  zb %  zv % f      z      conf";
+
+fn row(m: &MatchedMode) -> String {
+    let pair = format!(
+        "{}-{}{}",
+        m.baseline_mode,
+        m.variant_mode,
+        m.pairing.short()
+    );
+    let conf = format!(
+        "{:.2}{}",
+        m.confidence,
+        if m.residue_sign_agrees == Some(false) {
+            "!"
+        } else {
+            ""
+        }
+    );
+    let line = format!(
+        "  {:>5} {:>7.1} {:>7.1} {:>+6.1} {:>6.3} {:>7} {:>5} {:>5} {:<6} {:<6} {:<5}",
+        pair,
+        m.baseline_hz,
+        m.variant_hz,
+        m.frequency_change_pct,
+        m.stiffness_ratio,
+        m.stiffness_ratio_mass_corrected
+            .map_or("-".into(), |k| format!("{k:.3}")),
+        pct(m.baseline_damping),
+        pct(m.variant_damping),
+        m.frequency_verdict.short(),
+        verdict(m.damping_verdict),
+        conf
+    );
+    format!("{}\n", line.trim_end())
+}
+
+fn mount_rows(c: &MountComparison, base: &str, var: &str) -> String {
+    let mut s = String::new();
+    if let (Some(a), Some(b)) = (&c.baseline, &c.variant) {
+        let line = format!(
+            "  {:>5} {:>7.1} {:>7.1} {:>+6.1} {:>6.3} {:>7} {:>5.2} {:>5.2} {:<6} {:<6}",
+            "mount",
+            a.natural_frequency_hz,
+            b.natural_frequency_hz,
+            c.frequency_change_pct.unwrap_or(0.0),
+            c.stiffness_ratio.unwrap_or(0.0),
+            "-",
+            100.0 * a.damping_ratio,
+            100.0 * b.damping_ratio,
+            verdict(c.frequency_verdict),
+            verdict(c.damping_verdict),
+        );
+        s += line.trim_end();
+        s.push('\n');
+        let poor = |e: f64| if e > 0.3 { " (poor fit)" } else { "" };
+        s += &wrap(
+            &format!(
+                "mount fit residual {:.2}{} in {base}, {:.2}{} in {var}; isolates above {:.0} -> {:.0} Hz",
+                a.fit_error,
+                poor(a.fit_error),
+                b.fit_error,
+                poor(b.fit_error),
+                a.isolation_onset_hz,
+                b.isolation_onset_hz
+            ),
+            "  ",
+            "    ",
+        );
+    }
+    if let Some(i) = &c.isolation {
+        let band = if i.band_hz.0 == i.band_hz.1 {
+            format!("{:.0} Hz", i.band_hz.0)
+        } else {
+            format!("{:.0}-{:.0} Hz", i.band_hz.0, i.band_hz.1)
+        };
+        let measured = match (i.baseline_measured_db, i.variant_measured_db) {
+            (Some(a), Some(b)) => format!("; measured {a:+.1} -> {b:+.1} dB"),
+            _ => String::new(),
+        };
+        s += &wrap(
+            &format!(
+                "transmissibility at {band}: model {:+.1} -> {:+.1} dB ({:+.1} dB){measured}",
+                i.baseline_model_db, i.variant_model_db, i.model_change_db
+            ),
+            "  ",
+            "    ",
+        );
+    }
+    if let Some(n) = &c.note {
+        s += &wrap(n, "  mount: ", "    ");
+    }
+    s
+}
+
+fn variant_block(c: &Comparison, v: &VariantComparison) -> String {
+    let mut s = format!("{} -> {}", c.baseline, v.label);
+    if let (Some(a), Some(b)) = (c.baseline_mass_g, v.mass_g) {
+        s += &format!("   (mass {a:.1} g -> {b:.1} g)");
+    }
+    s.push('\n');
+    s += HEAD;
+    s.push('\n');
+    for m in &v.matched {
+        s += &row(m);
+    }
+    if let Some(mc) = &v.mount {
+        s += &mount_rows(mc, &c.baseline, &v.label);
+    }
+    for (who, list) in [
+        (&c.baseline, &v.unpaired_baseline),
+        (&v.label, &v.unpaired_variant),
+    ] {
+        for u in list {
+            s += &wrap(
+                &format!("mode {} at {:.1} Hz: {}", u.mode, u.frequency_hz, u.reason),
+                &format!("  only in {who}: "),
+                "    ",
+            );
+        }
+    }
+    let rules = |l: &[super::PairRule]| {
+        l.iter()
+            .map(|r| format!("{}={}", r.baseline_mode, r.variant_mode))
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    if !v.pins.is_empty() {
+        s += &format!("  pinned by the user: {}\n", rules(&v.pins));
+    }
+    if !v.forbids.is_empty() {
+        s += &format!("  forbidden by the user: {}\n", rules(&v.forbids));
+    }
+    for w in &v.warnings {
+        s += &wrap(w, "  warning: ", "    ");
+    }
+    s += &wrap(&v.summary, "  => ", "     ");
+    s
+}
+
+fn predictions_block(p: &PredictionReport) -> String {
+    let mut s = String::new();
+    for r in &p.runs {
+        s += &wrap(
+            &format!(
+                "predicted ({}) vs {}: good = within {:.0} %, fair = within {:.0} %",
+                p.source, r.run, p.good_within_pct, p.fair_within_pct
+            ),
+            "",
+            "  ",
+        );
+        s += "   pred label        pred Hz  meas Hz  diff %  agree  zp %  zm %  conf\n";
+        for q in &r.pairs {
+            let label: String = q
+                .label
+                .clone()
+                .unwrap_or_default()
+                .chars()
+                .take(12)
+                .collect();
+            s += &format!(
+                "  {:>2}-{:<2} {:<12} {:>7.1} {:>8.1} {:>+7.1}  {:<5} {:>5} {:>5}  {:.2}\n",
+                q.predicted_mode,
+                q.measured_mode,
+                label,
+                q.predicted_hz,
+                q.measured_hz,
+                q.difference_pct,
+                q.agreement.label(),
+                pct(q.predicted_damping),
+                pct(q.measured_damping),
+                q.confidence
+            );
+        }
+        if !r.not_seen.is_empty() {
+            let list: Vec<String> = r
+                .not_seen
+                .iter()
+                .map(|n| {
+                    format!(
+                        "{}{} {:.1} Hz",
+                        n.predicted_mode,
+                        n.label
+                            .as_ref()
+                            .map_or(String::new(), |l| format!(" ({l})")),
+                        n.frequency_hz
+                    )
+                })
+                .collect();
+            s += &wrap(&list.join(", "), "  predicted, not seen: ", "    ");
+        }
+        if !r.not_predicted_hz.is_empty() {
+            let list: Vec<String> = r
+                .not_predicted_hz
+                .iter()
+                .map(|f| format!("{f:.1} Hz"))
+                .collect();
+            s += &wrap(&list.join(", "), "  measured, not predicted: ", "    ");
+        }
+    }
+    s
+}
+
+/// The comparison as a plain-text table, at most `WIDTH` columns, with a legend.
+pub fn render_table(c: &Comparison) -> String {
+    let mut s = String::new();
+    for v in &c.variants {
+        s += &variant_block(c, v);
+    }
+    if let Some(p) = &c.predicted {
+        s += &predictions_block(p);
+    }
+    if let Some(r) = &c.repeatability {
+        s += &wrap(
+            &format!(
+                "{} pairs across the repeats: RMS change {:.2} %, largest {:.2} %{}",
+                r.pairs,
+                r.rms_frequency_change_pct,
+                r.largest_frequency_change_pct,
+                r.largest_damping_change_pct
+                    .map_or(String::new(), |d| format!(" (damping: largest {d:.1} %)"))
+            ),
+            "repeatability: ",
+            "  ",
+        );
+        s += &wrap(&r.advice, "  ", "  ");
+    }
+    let st = &c.settings;
+    s += "legend:\n";
+    s += "  pair = mode numbers base-variant (x crossed on residue sign, p pinned)\n";
+    s += "  df % = (f_var / f_base - 1); k eq = (f_var / f_base)^2, stiffness ratio at\n";
+    s += "    equal mass; k mass = (m_var / m_base)(f_var / f_base)^2 (k = m w^2)\n";
+    s += "  zb %, zv % = damping ratio of base and variant, percent of critical\n";
+    s += "  f, z = verdict on the frequency and damping change: real = beyond the\n";
+    s += "    repeatability floor and the hit-to-hit spread (Welch test, 95 %);\n";
+    s += "    real* = beyond the floor, no spread stored; spread = within the\n";
+    s += "    hit-to-hit spread; floor = within the repeatability floor; doubt =\n";
+    s += "    beyond the floor but a flagged estimate (low coherence, few lines...)\n";
+    s += &wrap(
+        &format!(
+            "floor: {:.1} % in frequency, {:.0} % of the damping ratio ({}); pairs within {:.0} % of each other",
+            st.floor_frequency_pct, st.floor_damping_pct, st.floor_source, st.max_shift_pct
+        ),
+        "  ",
+        "    ",
+    );
+    s += "  conf = pairing confidence, 0.5 (toss-up) to 1; ! = residue signs differ\n";
+    s
+}
+
+/// The comparison as CSV: one row per pair, unpaired mode, mount and prediction.
+pub fn render_csv(c: &Comparison) -> Result<String> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let enc = |e: csv::Error| Error::new(format!("cannot encode the comparison as CSV: {e}"));
+    w.write_record([
+        "variant",
+        "row",
+        "baseline_mode",
+        "variant_mode",
+        "baseline_hz",
+        "variant_hz",
+        "frequency_change_pct",
+        "stiffness_ratio",
+        "stiffness_ratio_mass_corrected",
+        "baseline_damping",
+        "variant_damping",
+        "damping_change_pct",
+        "frequency_verdict",
+        "damping_verdict",
+        "pairing",
+        "confidence",
+        "residue_sign_agrees",
+        "note",
+    ])
+    .map_err(enc)?;
+    let f = |x: Option<f64>| x.map_or(String::new(), |v| format!("{v:.6}"));
+    for v in &c.variants {
+        for m in &v.matched {
+            w.write_record([
+                v.label.clone(),
+                "mode".into(),
+                m.baseline_mode.to_string(),
+                m.variant_mode.to_string(),
+                format!("{:.4}", m.baseline_hz),
+                format!("{:.4}", m.variant_hz),
+                format!("{:.4}", m.frequency_change_pct),
+                format!("{:.6}", m.stiffness_ratio),
+                f(m.stiffness_ratio_mass_corrected),
+                f(m.baseline_damping),
+                f(m.variant_damping),
+                f(m.damping_change_pct),
+                ser(&m.frequency_verdict),
+                m.damping_verdict.as_ref().map_or(String::new(), ser),
+                ser(&m.pairing),
+                format!("{:.4}", m.confidence),
+                m.residue_sign_agrees
+                    .map_or(String::new(), |b| b.to_string()),
+                String::new(),
+            ])
+            .map_err(enc)?;
+        }
+        for (row, list, base_side) in [
+            ("only_in_baseline", &v.unpaired_baseline, true),
+            ("only_in_variant", &v.unpaired_variant, false),
+        ] {
+            for u in list {
+                let (bm, vm, bh, vh, bz, vz) = if base_side {
+                    (
+                        u.mode.to_string(),
+                        String::new(),
+                        format!("{:.4}", u.frequency_hz),
+                        String::new(),
+                        f(u.damping_ratio),
+                        String::new(),
+                    )
+                } else {
+                    (
+                        String::new(),
+                        u.mode.to_string(),
+                        String::new(),
+                        format!("{:.4}", u.frequency_hz),
+                        String::new(),
+                        f(u.damping_ratio),
+                    )
+                };
+                let mut r = vec![v.label.clone(), row.into(), bm, vm, bh, vh];
+                r.extend(std::iter::repeat_n(String::new(), 3));
+                r.extend([bz, vz]);
+                r.extend(std::iter::repeat_n(String::new(), 6));
+                r.push(u.reason.clone());
+                w.write_record(&r).map_err(enc)?;
+            }
+        }
+        if let Some(mc) = &v.mount
+            && let (Some(a), Some(b)) = (&mc.baseline, &mc.variant)
+        {
+            w.write_record([
+                v.label.clone(),
+                "mount".into(),
+                String::new(),
+                String::new(),
+                format!("{:.4}", a.natural_frequency_hz),
+                format!("{:.4}", b.natural_frequency_hz),
+                f(mc.frequency_change_pct),
+                f(mc.stiffness_ratio),
+                String::new(),
+                format!("{:.6}", a.damping_ratio),
+                format!("{:.6}", b.damping_ratio),
+                f((a.damping_ratio > 0.0)
+                    .then(|| 100.0 * (b.damping_ratio - a.damping_ratio) / a.damping_ratio)),
+                mc.frequency_verdict.as_ref().map_or(String::new(), ser),
+                mc.damping_verdict.as_ref().map_or(String::new(), ser),
+                String::new(),
+                String::new(),
+                String::new(),
+                mc.isolation.as_ref().map_or(String::new(), |i| {
+                    format!(
+                        "transmissibility {:.0}-{:.0} Hz: {:+.2} -> {:+.2} dB (model)",
+                        i.band_hz.0, i.band_hz.1, i.baseline_model_db, i.variant_model_db
+                    )
+                }),
+            ])
+            .map_err(enc)?;
+        }
+    }
+    if let Some(p) = &c.predicted {
+        for r in &p.runs {
+            for q in &r.pairs {
+                w.write_record([
+                    r.run.clone(),
+                    "predicted".into(),
+                    q.predicted_mode.to_string(),
+                    q.measured_mode.to_string(),
+                    format!("{:.4}", q.predicted_hz),
+                    format!("{:.4}", q.measured_hz),
+                    format!("{:.4}", q.difference_pct),
+                    String::new(),
+                    String::new(),
+                    f(q.predicted_damping),
+                    f(q.measured_damping),
+                    String::new(),
+                    q.agreement.label().into(),
+                    String::new(),
+                    String::new(),
+                    format!("{:.4}", q.confidence),
+                    String::new(),
+                    q.label.clone().unwrap_or_default(),
+                ])
+                .map_err(enc)?;
+            }
+            for n in &r.not_seen {
+                let mut row = vec![
+                    r.run.clone(),
+                    "predicted_not_seen".into(),
+                    n.predicted_mode.to_string(),
+                    String::new(),
+                    format!("{:.4}", n.frequency_hz),
+                ];
+                row.extend(std::iter::repeat_n(String::new(), 12));
+                row.push(n.label.clone().unwrap_or_default());
+                w.write_record(&row).map_err(enc)?;
+            }
+        }
+    }
+    let bytes = w
+        .into_inner()
+        .map_err(|e| Error::new(format!("cannot encode the comparison as CSV: {e}")))?;
+    String::from_utf8(bytes).map_err(|e| Error::new(format!("cannot encode the comparison: {e}")))
+}
+
+/// The snake_case name a unit-variant enum serialises to.
+fn ser<T: serde::Serialize>(v: &T) -> String {
+    serde_json::to_value(v)
+        .ok()
+        .and_then(|v| v.as_str().map(str::to_string))
+        .unwrap_or_default()
+}
