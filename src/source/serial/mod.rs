@@ -114,6 +114,7 @@ impl SerialSource {
             }
         }
         let info = info_from(name, &header);
+        crate::run::validate::check_stream(&info, &format!("the stream header of '{name}'"))?;
         Ok(SerialSource {
             name: name.to_string(),
             link,
@@ -157,9 +158,9 @@ fn info_from(name: &str, h: &StreamHeader) -> StreamInfo {
         sample_rate: h.rate_hz,
         channels: (0..h.channels.len())
             .map(|i| ChannelInfo {
-                name: h.channels[i].clone(),
+                name: crate::run::validate::clean_text(&h.channels[i], false),
                 role: Role::Unused,
-                unit: h.unit(i).to_string(),
+                unit: crate::run::validate::clean_text(h.unit(i), false),
                 scale: h.scale(i),
                 full_scale: None,
             })
@@ -214,12 +215,24 @@ impl Source for SerialSource {
             for d in out.drain(..) {
                 match d {
                     Decoded::Header(h) => {
+                        if h.scales != self.header.scales || h.units != self.header.units {
+                            crate::fail!(
+                                "'{}' sent a new header with other scales or units ({}): the values would change meaning mid-run, so the capture stops; start a new run",
+                                self.name,
+                                h.scales
+                                    .iter()
+                                    .zip(&h.units)
+                                    .map(|(s, u)| format!("{s} {}", crate::run::validate::clean_text(u, false)))
+                                    .collect::<Vec<_>>()
+                                    .join(", ")
+                            );
+                        }
                         if h.rate_hz != self.header.rate_hz || h.channels != self.header.channels {
                             crate::fail!(
                                 "'{}' restarted with a different stream ({} Hz, channels {}): start a new run",
                                 self.name,
                                 h.rate_hz,
-                                h.channels.join(",")
+                                crate::run::validate::clean_text(&h.channels.join(","), false)
                             );
                         }
                     }
