@@ -51,6 +51,8 @@ pub struct SerialSource {
     last_data: Instant,
     block_len: usize,
     buf: Vec<u8>,
+    /// A link failure held back until the frames received before it are delivered.
+    deferred: Option<Error>,
 }
 
 impl SerialSource {
@@ -128,6 +130,7 @@ impl SerialSource {
             gap: 0,
             last_data: Instant::now(),
             buf,
+            deferred: None,
         })
     }
 
@@ -185,16 +188,27 @@ impl Source for SerialSource {
     }
 
     fn next_block(&mut self) -> Result<Option<Block>> {
+        if let Some(e) = self.deferred.take() {
+            return Err(e);
+        }
         let started = Instant::now();
         let mut out = Vec::new();
         while self.pending.len() < self.block_len && started.elapsed() < Duration::from_millis(40) {
             let n = match self.link.read_some(&mut self.buf) {
                 Ok(n) => n,
-                Err(e) => crate::fail!(
-                    "the serial device '{}' stopped ({}): unplugged or reset? Hits accepted so far are saved",
-                    self.name,
-                    crate::error::describe_io(&e)
-                ),
+                Err(e) => {
+                    let e = Error::new(format!(
+                        "the serial device '{}' stopped ({}): unplugged or reset? Hits accepted so far are saved",
+                        self.name,
+                        crate::error::describe_io(&e)
+                    ));
+                    if self.pending.is_empty() {
+                        return Err(e);
+                    }
+                    // Deliver what arrived before the failure first: nothing taken is lost.
+                    self.deferred = Some(e);
+                    break;
+                }
             };
             if n == 0 {
                 if self.last_data.elapsed() > SILENCE_LIMIT {
