@@ -17,12 +17,19 @@ use tapmodes::source::serial::codec::{BinaryEncoder, Decoder, StreamHeader, enco
 use tapmodes::source::wav::WavSource;
 
 fn one_sentence(e: &str) {
-    assert!(!e.is_empty() && !e.contains('\n'), "not one sentence: {e:?}");
+    assert!(
+        !e.is_empty() && !e.contains('\n'),
+        "not one sentence: {e:?}"
+    );
 }
 
 fn wav_seeds() -> Vec<Vec<u8>> {
     let ch: Vec<Vec<f64>> = (0..2)
-        .map(|c| (0..600).map(|k| ((k * (c + 3)) % 97) as f64 - 48.0).collect())
+        .map(|c| {
+            (0..600)
+                .map(|k| ((k * (c + 3)) % 97) as f64 - 48.0)
+                .collect()
+        })
         .collect();
     let mut f = pcm(2, 8000, 16);
     let mut seeds = vec![wav(&f, &ch, 100.0)];
@@ -60,8 +67,11 @@ fn fuzz_wav_once(bytes: Vec<u8>) {
 fn run_seed() -> String {
     // A small valid run file written by the library itself would need an analysis; the
     // committed demo run is the seed instead.
-    std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/recordings/arm-solid.json"))
-        .unwrap()
+    std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/recordings/arm-solid.json"
+    ))
+    .unwrap()
 }
 
 fn fuzz_run_once(text: &[u8]) {
@@ -104,7 +114,10 @@ fn fuzz_serial_once(bytes: &[u8], rng: &mut Rng) {
     assert_eq!(whole.stats(), split.stats());
     for d in &out {
         if let tapmodes::source::serial::codec::Decoded::Frame(f) = d {
-            assert!(f.iter().all(|v| v.is_finite()), "a value that is not finite");
+            assert!(
+                f.iter().all(|v| v.is_finite()),
+                "a value that is not finite"
+            );
         }
     }
 }
@@ -161,6 +174,9 @@ fn fuzz_long() {
         .and_then(|s| s.parse().ok())
         .unwrap_or(0x5eed);
     for (t, n, s) in fuzz(secs, seed) {
-        println!("{t}: {n} inputs in {s:.0} s ({:.0}/s), no panic", n as f64 / s);
+        println!(
+            "{t}: {n} inputs in {s:.0} s ({:.0}/s), no panic",
+            n as f64 / s
+        );
     }
 }

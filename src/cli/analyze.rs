@@ -67,7 +67,10 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
         .is_some_and(|e| e.eq_ignore_ascii_case("json"));
     let out = match &a.out {
         Some(o) => {
-            if !o.extension().is_some_and(|e| e.eq_ignore_ascii_case("json")) {
+            if !o
+                .extension()
+                .is_some_and(|e| e.eq_ignore_ascii_case("json"))
+            {
                 crate::fail!(
                     "--out names the mode list, which must end in .json (not '{}'); the curve CSV goes beside it",
                     o.display()

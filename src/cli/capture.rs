@@ -183,7 +183,9 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
         )));
     }
     if stop.load(Ordering::SeqCst) {
-        eprintln!("stopped by a signal (Ctrl-C, SIGTERM or SIGHUP); the run files hold everything up to now");
+        eprintln!(
+            "stopped by a signal (Ctrl-C, SIGTERM or SIGHUP); the run files hold everything up to now"
+        );
     } else if run.hits_accepted < a.hits {
         crate::fail!(
             "the source ended after {} of {} accepted hits; what was captured is in '{}'",

@@ -8,12 +8,12 @@ pub mod safe_path;
 pub mod validate;
 
 use crate::error::{Context, Error, Result};
-pub use safe_path::FileKind;
 use crate::hits::{CheckConfig, TriggerConfig};
 use crate::modes::{Mode, ModeConfig};
 use crate::pipeline::{Analysis, HitSummary};
 use crate::signal::{ChannelInfo, Roles};
 use crate::spectra::{Basis, Curve, Estimator, Spectra, WindowConfig};
+pub use safe_path::FileKind;
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
 

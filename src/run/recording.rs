@@ -69,7 +69,9 @@ impl RecordingWriter {
                 Ok(file) => return Ok((Self::with_file(&wav, file, info)?, stem)),
                 Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => continue,
                 Err(e) => {
-                    return Err(Error::from(e).context(format!("cannot create '{}'", wav.display())));
+                    return Err(
+                        Error::from(e).context(format!("cannot create '{}'", wav.display()))
+                    );
                 }
             }
         }

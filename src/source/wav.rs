@@ -170,7 +170,8 @@ impl Source for WavSource {
             let end = at.saturating_add(len);
             if end > self.next {
                 self.next = end.min(self.frames_total);
-                let off = self.data_offset + self.next * (self.kind.bytes() * self.info.channels.len()) as u64;
+                let off = self.data_offset
+                    + self.next * (self.kind.bytes() * self.info.channels.len()) as u64;
                 self.reader
                     .seek(SeekFrom::Start(off))
                     .map_err(|e| Error::new(format!("cannot read '{}': {e}", self.name)))?;
@@ -190,7 +191,10 @@ impl Source for WavSource {
         self.bytes.resize(frames * n_ch * width, 0);
         if let Err(e) = self.reader.read_exact(&mut self.bytes) {
             return Err(if e.kind() == std::io::ErrorKind::UnexpectedEof {
-                Error::new(format!("'{}' ends early: the WAV file is truncated", self.name))
+                Error::new(format!(
+                    "'{}' ends early: the WAV file is truncated",
+                    self.name
+                ))
             } else {
                 Error::new(format!(
                     "cannot read '{}': {}",

@@ -18,7 +18,10 @@ pub enum SampleKind {
     U8,
     /// Signed little-endian integer in `bytes` (2, 3 or 4) with `valid` significant bits,
     /// left-justified.
-    Int { bytes: u8, valid: u16 },
+    Int {
+        bytes: u8,
+        valid: u16,
+    },
     F32,
     F64,
 }

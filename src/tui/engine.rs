@@ -288,8 +288,11 @@ impl Engine {
                 setup.out_dir.display()
             ))
         })?;
-        let (recorder, stem) =
-            RecordingWriter::create_fresh(&setup.out_dir, &sanitize_stem(&setup.label), &setup.info)?;
+        let (recorder, stem) = RecordingWriter::create_fresh(
+            &setup.out_dir,
+            &sanitize_stem(&setup.label),
+            &setup.info,
+        )?;
         let wav_path = setup.out_dir.join(format!("{stem}.wav"));
         let fs = setup.info.sample_rate;
         let mut shown = vec![analysis.detector().trigger_config().channel];
@@ -502,12 +505,11 @@ impl Engine {
         cfg.estimator = self.analysis.config().estimator;
         cfg.basis = self.analysis.config().basis;
         self.analysis = Analysis::new(&self.setup.info, self.setup.roles, cfg, true)?;
-        let (recorder, stem) =
-            RecordingWriter::create_fresh(
-                &self.setup.out_dir,
-                &sanitize_stem(&self.label),
-                &self.setup.info,
-            )?;
+        let (recorder, stem) = RecordingWriter::create_fresh(
+            &self.setup.out_dir,
+            &sanitize_stem(&self.label),
+            &self.setup.info,
+        )?;
         self.stem = stem;
         self.wav_path = self.setup.out_dir.join(format!("{}.wav", self.stem));
         self.recorder = Some(recorder);

@@ -90,9 +90,9 @@ pub fn i16s(chans: &[Vec<f64>], gain: f64) -> Vec<u8> {
 /// A whole WAV from a format and 16-bit-range values.
 pub fn wav(f: &Fmt, chans: &[Vec<f64>], gain: f64) -> Vec<u8> {
     let data = match (f.tag, f.bits, f.ext) {
-        (3, 32, _) | (0xFFFE, 32, Some((_, 3))) => {
-            interleave(chans, |v| ((v * gain / 32768.0) as f32).to_le_bytes().to_vec())
-        }
+        (3, 32, _) | (0xFFFE, 32, Some((_, 3))) => interleave(chans, |v| {
+            ((v * gain / 32768.0) as f32).to_le_bytes().to_vec()
+        }),
         (3, 64, _) => interleave(chans, |v| (v * gain / 32768.0).to_le_bytes().to_vec()),
         (_, 8, _) => interleave(chans, |v| {
             vec![((v * gain / 256.0).round().clamp(-128.0, 127.0) + 128.0) as u8]
@@ -102,9 +102,13 @@ pub fn wav(f: &Fmt, chans: &[Vec<f64>], gain: f64) -> Vec<u8> {
             x[..3].to_vec()
         }),
         (_, 32, Some((24, 1))) => interleave(chans, |v| {
-            (((v * gain * 256.0).round() as i32) << 8).to_le_bytes().to_vec()
+            (((v * gain * 256.0).round() as i32) << 8)
+                .to_le_bytes()
+                .to_vec()
         }),
-        (_, 32, _) => interleave(chans, |v| ((v * gain * 65536.0).round() as i32).to_le_bytes().to_vec()),
+        (_, 32, _) => interleave(chans, |v| {
+            ((v * gain * 65536.0).round() as i32).to_le_bytes().to_vec()
+        }),
         _ => i16s(chans, gain),
     };
     riff(&[fmt_chunk(f), data_chunk(&data, None)])

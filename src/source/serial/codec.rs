@@ -804,7 +804,10 @@ impl BinaryDecoder {
         let n_frames = data.len() / stride;
         // Scaled values must be finite: a header scale so large that a sample overflows
         // makes the packet unusable, whatever its CRC says.
-        if h.scales.iter().any(|s| !(s * f64::from(i32::MAX)).is_finite()) {
+        if h.scales
+            .iter()
+            .any(|s| !(s * f64::from(i32::MAX)).is_finite())
+        {
             return false;
         }
         if let Some(expected) = self.next_frame {

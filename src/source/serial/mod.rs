@@ -236,7 +236,10 @@ impl Source for SerialSource {
                                 h.scales
                                     .iter()
                                     .zip(&h.units)
-                                    .map(|(s, u)| format!("{s} {}", crate::run::validate::clean_text(u, false)))
+                                    .map(|(s, u)| format!(
+                                        "{s} {}",
+                                        crate::run::validate::clean_text(u, false)
+                                    ))
                                     .collect::<Vec<_>>()
                                     .join(", ")
                             );
