@@ -128,10 +128,10 @@ fn cases() -> Vec<(&'static str, Vec<Vec<u8>>, Check)> {
     let long_hdr = format!(
         "# rate_hz=1000 channels={} units={} scale={}",
         long_names.join(","),
-        vec!["g"; 12].join(","),
-        vec!["1"; 12].join(",")
+        ["g"; 12].join(","),
+        ["1"; 12].join(",")
     );
-    let long_line = vec!["1"; 12].join(",");
+    let long_line = ["1"; 12].join(",");
     let mut v: Vec<(&'static str, Vec<Vec<u8>>, Check)> = vec![
         (
             "text-rate-1e12",
@@ -404,7 +404,7 @@ fn long_encoded_header_is_text() {
     assert!(line.len() > 255);
     let o = feed(vec![
         line,
-        [vec!["1"; 16].join(","), "\n".into()].concat().into_bytes(),
+        [["1"; 16].join(","), "\n".into()].concat().into_bytes(),
     ]);
     assert_eq!(o.names.len(), 16, "{o:?}");
     assert_eq!(o.frames, 1);

@@ -80,6 +80,9 @@ pub struct WavHeader {
     pub frames: u64,
 }
 
+/// tag, channels, rate, block align, bits, (valid bits, sub-format tag) of extensible.
+type FmtFields = (u16, u16, u32, u16, u16, Option<(u16, u16)>);
+
 /// Most chunks looked at before the data chunk.
 const MAX_CHUNKS: usize = 4096;
 
@@ -99,7 +102,7 @@ pub fn read_header<R: Read + Seek>(r: &mut R, file_len: u64, name: &str) -> Resu
     }
     let mut pos = 12u64;
     let mut ds64_data: Option<u64> = None;
-    let mut fmt: Option<(u16, u16, u32, u16, u16, Option<(u16, u16)>)> = None;
+    let mut fmt: Option<FmtFields> = None;
     for _ in 0..MAX_CHUNKS {
         let mut ch = [0u8; 8];
         r.seek(SeekFrom::Start(pos)).map_err(|_| trunc())?;
