@@ -4,7 +4,7 @@ use super::args::{AnalysisArgs, ChannelArgs};
 use super::report;
 use crate::error::Result;
 use crate::pipeline::{Analysis, analyse_source};
-use crate::run::{RunFile, Variant, write_run_files};
+use crate::run::{FileKind, RunFile, Variant, safe_path, validate, write_run_files};
 use crate::signal::RoleChoice;
 use crate::source::Source;
 use crate::source::wav::WavSource;
@@ -69,29 +69,101 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
         .input
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("json"));
-    let out = a.out.clone().unwrap_or_else(|| default_out(&a.input));
+    let out = match &a.out {
+        Some(o) => {
+            if !o
+                .extension()
+                .is_some_and(|e| e.eq_ignore_ascii_case("json"))
+            {
+                crate::fail!(
+                    "--out names the mode list, which must end in .json (not '{}'); the curve CSV goes beside it",
+                    o.display()
+                );
+            }
+            o.clone()
+        }
+        None => default_out(&a.input),
+    };
+    let label = a.variant.as_ref().map(|v| validate::clean_text(v, false));
+    let cli_note = validate::clean_text(&a.note, true);
     let (analysis, wav, mut variant) = if is_json {
-        reanalyse(&a.input)?
+        let (analysis, wav, saved) = reanalyse(&a.input)?;
+        check_outputs(&out, &[&a.input, &wav])?;
+        (analysis, wav, saved)
     } else {
         let choice = a.channels.role_choice();
         let mut src = open_wav(&a.input, &a.channels, &choice)?;
         let roles = choice.resolve(src.info())?;
-        let analysis = analyse_source(&mut src, roles, a.analysis.config()?, false)?;
-        let label = a.variant.clone().unwrap_or_else(|| stem(&a.input));
-        (
-            analysis,
-            a.input.clone(),
-            Variant {
-                label,
-                note: a.note.clone(),
-                mass_g: None,
-            },
-        )
+        let cfg = a.analysis.config()?;
+        validate::check_analysis(&cfg, src.info(), &roles, "the command line")?;
+        check_outputs(&out, &[&a.input])?;
+        // Re-analysed over its own earlier run: keep the operator's verdicts, label and note.
+        let earlier = earlier_run(&out, &a.input)?;
+        let mut analysis = analyse_source(&mut src, roles, cfg, earlier.is_some())?;
+        let mut variant = Variant {
+            label: stem(&a.input),
+            note: String::new(),
+            mass_g: None,
+        };
+        if let Some(run) = earlier {
+            analysis.apply_verdicts(&run.hits);
+            eprintln!(
+                "note: '{}' was a run of this recording; its operator verdicts, label and note are kept",
+                out.display()
+            );
+            variant = run.variant;
+        }
+        if let Some(l) = label.clone() {
+            variant.label = l;
+        }
+        if !cli_note.is_empty() {
+            variant.note = cli_note.clone();
+        }
+        (analysis, a.input.clone(), variant)
     };
     if a.mass.is_some() {
         variant.mass_g = a.mass;
     }
     finish(&analysis, variant, &out, &wav, a.hits, a.isolation)
+}
+
+/// The JSON and the CSV beside it must not replace an input, a file of another kind or
+/// anything but a regular file.
+fn check_outputs(out: &Path, inputs: &[&Path]) -> Result<()> {
+    safe_path::check_output(out, FileKind::Json, inputs)?;
+    safe_path::check_output(&out.with_extension("csv"), FileKind::Csv, inputs)
+}
+
+/// The run already at `out`, when it is a run of `wav`; an error when `out` holds a run of
+/// another recording or a JSON file that is not a run (it is not replaced).
+fn earlier_run(out: &Path, wav: &Path) -> Result<Option<RunFile>> {
+    if std::fs::symlink_metadata(out).is_err() || safe_path::kind_of(out).is_none() {
+        return Ok(None);
+    }
+    let run = RunFile::load(out).map_err(|e| {
+        e.context(format!(
+            "'{}' exists and is not a run file this command may replace",
+            out.display()
+        ))
+    })?;
+    let same = run
+        .wav_path(out)
+        .and_then(|p| p.ok())
+        .is_some_and(|p| same_file(&p, wav));
+    if !same {
+        crate::fail!(
+            "'{}' holds the run of another recording; will not replace it (choose another --out)",
+            out.display()
+        );
+    }
+    Ok(Some(run))
+}
+
+fn same_file(a: &Path, b: &Path) -> bool {
+    match (a.canonicalize(), b.canonicalize()) {
+        (Ok(x), Ok(y)) => x == y,
+        _ => false,
+    }
 }
 
 fn parse_freq_or_band(s: &str) -> std::result::Result<(f64, f64), String> {
@@ -141,43 +213,61 @@ fn isolation(analysis: &Analysis, band: (f64, f64)) -> Result<crate::run::Isolat
     })
 }
 
-/// Re-run a saved run: same recording, same settings, same operator verdicts.
+/// Re-run a saved run: same recording, same settings, same operator verdicts. The run
+/// file is checked like command-line settings, its recording must lie in its folder and
+/// match it (channels, rate, length), and the recording's own calibration and full scale
+/// are taken from the run, so re-analysis reproduces the capture.
 fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
     let saved = RunFile::load(json)?;
+    let shown = json.display();
     let wav = saved.wav_path(json).ok_or_else(|| {
-        crate::error::Error::new(format!("'{}' does not name a recording", json.display()))
-    })?;
+        crate::error::Error::new(format!("'{shown}' does not name a recording"))
+    })??;
     let mut src = WavSource::open(&wav)?;
-    for (i, c) in saved.setup.channels.iter().enumerate() {
-        if saved
-            .recording
-            .as_ref()
-            .is_some_and(|r| r.encoding.starts_with("counts"))
-        {
-            src.calibrate(i, &c.unit, c.scale);
-        } else {
-            src.calibrate(i, &c.unit, 1.0);
-        }
+    let s = &saved.setup;
+    let (n_run, n_wav) = (s.channels.len(), src.info().channels.len());
+    if n_run != n_wav {
+        crate::fail!(
+            "'{}' has {n_wav} channels but the run '{shown}' was made with {n_run}: it is not this run's recording",
+            wav.display()
+        );
+    }
+    if (src.info().sample_rate - s.sample_rate_hz.round()).abs() > 0.5 {
+        crate::fail!(
+            "'{}' is sampled at {} Hz but the run '{shown}' at {} Hz: it is not this run's recording",
+            wav.display(),
+            src.info().sample_rate,
+            s.sample_rate_hz
+        );
+    }
+    let rec = saved.recording.as_ref();
+    let counts = rec.is_some_and(|r| r.encoding.starts_with("counts"));
+    for (i, c) in s.channels.iter().enumerate() {
+        src.calibrate(i, &c.unit, if counts { c.scale } else { 1.0 });
+        src.set_full_scale(i, c.full_scale);
         src.set_channel(i, &c.name, c.role);
     }
-    let s = &saved.setup;
-    let cfg = crate::pipeline::AnalysisConfig {
-        trigger: crate::pipeline::TriggerChoice {
-            channel: Some(s.trigger.channel),
-            level: s.trigger.level,
-            pretrigger_s: s.trigger.pretrigger_s,
-            record_s: s.trigger.record_s,
-            holdoff_s: s.trigger.holdoff_s,
-        },
-        checks: s.checks.clone(),
-        spectra: crate::spectra::SpectraConfig {
-            windows: s.windows.clone(),
-            pad: s.fft.zero_pad,
-        },
-        modes: s.mode_search.clone(),
-        estimator: s.estimator,
-        basis: Some(s.basis),
-    };
+    if let Some(r) = rec {
+        let lost: u64 = r.gaps.iter().map(|g| g.1).sum();
+        let needed = r.frames - lost;
+        if src.frames() < needed {
+            crate::fail!(
+                "'{}' holds {} frames but the run '{shown}' covers {needed}: the recording is shorter than its run",
+                wav.display(),
+                src.frames()
+            );
+        }
+        if src.frames() > needed {
+            eprintln!(
+                "note: '{}' goes on {} frames past the run (a capture that ended without its last save); analysing the first {needed} as the run did",
+                wav.display(),
+                src.frames() - needed
+            );
+            src.limit_frames(needed);
+        }
+        src.skip_gaps(&r.gaps);
+    }
+    let cfg = saved.analysis_config();
     let mut analysis = Analysis::new(&src.info().clone(), s.roles, cfg, true)?;
     analysis.set_disarmed(saved.disarmed.clone());
     let mut analysis = crate::pipeline::drain_into(&mut src, analysis)?;
@@ -207,7 +297,22 @@ fn finish(
         "counts"
     };
     let iso = isolation_band.map(|b| isolation(analysis, b)).transpose()?;
-    let mut run = write_run_files(analysis, variant, out, Some((wav, encoding)))?;
+    let note = crate::run::RecordingNote {
+        wav,
+        encoding,
+        gaps: &[],
+    };
+    let mut run = write_run_files(analysis, variant, out, Some(note))?;
+    if run
+        .recording
+        .as_ref()
+        .is_some_and(|r| r.wav.starts_with("..") || Path::new(&r.wav).is_absolute())
+    {
+        eprintln!(
+            "note: the recording is not in the folder of '{}'; re-analysing that run file needs the recording beside it",
+            out.display()
+        );
+    }
     if let Some(m) = &run.mount {
         println!(
             "mount (from the transmissibility): {:.1} Hz, damping {:.1} %, isolates above {:.1} Hz",
@@ -266,17 +371,20 @@ fn stem(p: &Path) -> String {
 }
 
 /// `bench.wav` -> `bench.modes.json`; a run file is never overwritten by default:
-/// `bench.modes.json` -> `bench.again.json`.
+/// `bench.modes.json` -> `bench.again.json`, or `bench.again-2.json` and on when taken.
 fn default_out(input: &Path) -> PathBuf {
     let s = stem(input);
+    let dir = match input.parent() {
+        Some(d) => d.to_path_buf(),
+        None => PathBuf::new(),
+    };
+    let is_json = input
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("json"));
+    let again = |base: &str| safe_path::free_name(&dir, &format!("{base}.again"), "json");
     match s.strip_suffix(".modes") {
-        Some(base) => input.with_file_name(format!("{base}.again.json")),
-        None if input
-            .extension()
-            .is_some_and(|e| e.eq_ignore_ascii_case("json")) =>
-        {
-            input.with_file_name(format!("{s}.again.json"))
-        }
-        None => input.with_file_name(format!("{s}.modes.json")),
+        Some(base) if is_json => again(base),
+        None if is_json => again(&s),
+        _ => input.with_file_name(format!("{s}.modes.json")),
     }
 }

@@ -184,15 +184,13 @@ impl AnalysisArgs {
                 record_s: self
                     .record_s
                     .map_or(Ok(d.record_s), |r| positive(r, "--record-s"))?,
-                holdoff_s: self.holdoff_s.unwrap_or(d.holdoff_s).max(0.0),
+                holdoff_s: self.holdoff_s.unwrap_or(d.holdoff_s),
             },
             checks,
             spectra: SpectraConfig {
                 windows,
-                pad: self
-                    .pad
-                    .unwrap_or(SpectraConfig::default().pad)
-                    .clamp(1, 16),
+                // Checked (1 to 16) with the rest in `run::validate`, not clamped silently.
+                pad: self.pad.unwrap_or(SpectraConfig::default().pad),
             },
             modes,
             estimator: self.estimator,

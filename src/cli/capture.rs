@@ -6,7 +6,8 @@ use super::source_args::SourceArgs;
 use crate::error::{Context, Result};
 use crate::pipeline::Analysis;
 use crate::run::recording::RecordingWriter;
-use crate::run::{Variant, write_run_files};
+use crate::run::validate;
+use crate::run::{RunFile, Variant, write_run_files};
 use crate::source::live::{Feed, LiveFeed};
 use clap::Args;
 use std::path::{Path, PathBuf};
@@ -39,70 +40,48 @@ pub struct CaptureArgs {
     pub analysis: AnalysisArgs,
 }
 
-/// A file stem for a label that does not clobber an earlier run in `dir`.
-pub fn fresh_stem(dir: &Path, label: &str) -> String {
-    let clean: String = label
-        .chars()
-        .map(|c| {
-            if c.is_ascii_alphanumeric() || "-_.".contains(c) {
-                c
-            } else {
-                '_'
-            }
-        })
-        .collect();
-    let clean = if clean.is_empty() {
-        "variant".to_string()
-    } else {
-        clean
-    };
-    let taken =
-        |s: &str| dir.join(format!("{s}.json")).exists() || dir.join(format!("{s}.wav")).exists();
-    if !taken(&clean) {
-        return clean;
-    }
-    (2..)
-        .map(|i| format!("{clean}-{i}"))
-        .find(|s| !taken(s))
-        .unwrap_or(clean)
-}
-
 pub fn run(a: &CaptureArgs) -> Result<()> {
     let cfg = a.analysis.config()?;
     let opened = a.source.open(&a.channels, true)?;
+    let info = opened.source.info().clone();
+    validate::check_analysis(&cfg, &info, &opened.roles, "the command line")?;
     std::fs::create_dir_all(&a.out)
         .with_context(|| format!("cannot create folder '{}'", a.out.display()))?;
-    let stem = fresh_stem(&a.out, &a.variant);
+    let mut analysis = Analysis::new(&info, opened.roles, cfg, false)?;
+    // The WAV is created exclusively: two captures into one folder never share a name.
+    let (mut rec, stem) = RecordingWriter::create_fresh(&a.out, &a.variant, &info)?;
     let wav = a.out.join(format!("{stem}.wav"));
     let json = a.out.join(format!("{stem}.json"));
-    let info = opened.source.info().clone();
-    let mut analysis = Analysis::new(&info, opened.roles, cfg, false)?;
-    let mut rec = RecordingWriter::create(&wav, &info)?;
     let encoding = rec.encoding();
     let variant = Variant {
-        label: a.variant.clone(),
-        note: a.note.clone(),
+        label: validate::clean_text(&a.variant, false),
+        note: validate::clean_text(&a.note, true),
         mass_g: a.mass,
     };
     let stop = Arc::new(AtomicBool::new(false));
     {
         let stop = stop.clone();
-        // A second handler cannot be installed in the same process (tests); ignore that.
+        // SIGINT, SIGTERM and SIGHUP (ctrlc's `termination` feature). A second handler
+        // cannot be installed in the same process (tests); ignore that.
         let _ = ctrlc::set_handler(move || stop.store(true, Ordering::SeqCst));
     }
     eprintln!(
-        "capturing from {} at {} Hz ({} channels); {} accepted hits wanted; Ctrl-C ends early",
-        info.source,
+        "capturing from {} at {} Hz ({} channels) into {}; {} accepted hits wanted; Ctrl-C ends early",
+        validate::clean_text(&info.source, false),
         info.sample_rate,
         info.channels.len(),
+        wav.display(),
         a.hits
     );
     let feed = LiveFeed::start(opened.source);
     let fs = info.sample_rate;
     let mut failure = None;
     let mut seen = 0;
+    // The last run file written: a stop re-uses its modes (nothing accepted since), so
+    // ending takes no fitting time.
+    let mut saved: Option<RunFile> = None;
     while !stop.load(Ordering::SeqCst) && analysis.accepted() < a.hits {
-        match feed.recv_timeout(std::time::Duration::from_millis(100)) {
+        match feed.recv_timeout(std::time::Duration::from_millis(50)) {
             None => continue,
             Some(Feed::Ended(None)) => break,
             Some(Feed::Ended(Some(e))) => {
@@ -110,7 +89,11 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
                 break;
             }
             Some(Feed::Block(b)) => {
-                rec.append(&b)?;
+                if let Err(e) = rec.append(&b) {
+                    // The recording cannot take this block: the run ends before it.
+                    failure = Some(e);
+                    break;
+                }
                 if analysis.push(&b) == 0 {
                     continue;
                 }
@@ -129,8 +112,16 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
                 seen = analysis.hits().len();
                 if accepted_now {
                     // Save as each accepted hit lands: nothing accepted is lost later.
-                    rec.flush()?;
-                    write_run_files(&analysis, variant.clone(), &json, Some((&wav, encoding)))?;
+                    let saved_now = rec.flush().and_then(|()| {
+                        write_run_files(&analysis, variant.clone(), &json, Some(note(&rec, &wav)))
+                    });
+                    match saved_now {
+                        Ok(run) => saved = Some(run),
+                        Err(e) => {
+                            failure = Some(e);
+                            break;
+                        }
+                    }
                     eprintln!(
                         "  {} of {} accepted hits saved to {}",
                         analysis.accepted(),
@@ -154,8 +145,31 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
             h.reason
         );
     }
+    let gaps = rec.gaps().to_vec();
     rec.finish()?;
-    let run = write_run_files(&analysis, variant, &json, Some((&wav, encoding)))?;
+    let run = match saved {
+        Some(mut run) if run.hits_accepted == analysis.accepted() => {
+            // Same accepted hits as the last save: bring the hit list and the recording
+            // up to date without fitting again.
+            run.hits = analysis.hits().to_vec();
+            run.hits_total = run.hits.len();
+            if let Some(r) = run.recording.as_mut() {
+                r.frames = analysis.detector().position();
+                r.gaps = gaps;
+            }
+            run.created_utc = crate::run::now_rfc3339();
+            run.save(&json)?;
+            run
+        }
+        _ => {
+            let note = crate::run::RecordingNote {
+                wav: &wav,
+                encoding,
+                gaps: &gaps,
+            };
+            write_run_files(&analysis, variant, &json, Some(note))?
+        }
+    };
     eprintln!(
         "{} hits, {} accepted{}{}",
         run.hits_total,
@@ -184,7 +198,9 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
         )));
     }
     if stop.load(Ordering::SeqCst) {
-        eprintln!("stopped by Ctrl-C; the run files hold everything up to now");
+        eprintln!(
+            "stopped by a signal (Ctrl-C, SIGTERM or SIGHUP); the run files hold everything up to now"
+        );
     } else if run.hits_accepted < a.hits {
         crate::fail!(
             "the source ended after {} of {} accepted hits; what was captured is in '{}'",
@@ -194,6 +210,14 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
         );
     }
     Ok(())
+}
+
+fn note<'a>(rec: &'a RecordingWriter, wav: &'a Path) -> crate::run::RecordingNote<'a> {
+    crate::run::RecordingNote {
+        wav,
+        encoding: rec.encoding(),
+        gaps: rec.gaps(),
+    }
 }
 
 fn link_note(feed: &LiveFeed, analysis: &Analysis) -> String {

@@ -31,12 +31,18 @@ pub struct TuiArgs {
 pub fn run(a: &TuiArgs) -> Result<()> {
     let config = a.analysis.config()?;
     let opened = a.source.open(&a.channels, false)?;
+    crate::run::validate::check_analysis(
+        &config,
+        opened.source.info(),
+        &opened.roles,
+        "the command line",
+    )?;
     crate::tui::run(crate::tui::Launch {
         source: opened.source,
         roles: opened.roles,
         config,
         out_dir: a.out.clone(),
-        variant: a.variant.clone(),
+        variant: crate::run::validate::clean_text(&a.variant, false),
         auto_tap_s: a.auto_tap.filter(|s| *s > 0.0),
         demo: opened.demo,
         compare_with: a.compare.clone(),

@@ -17,8 +17,20 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
         .unwrap_or_else(|| "out".into());
     let tmp = dir.join(format!(".{name}.tmp-{}", std::process::id()));
     let shown = path.display();
+    if let Ok(m) = std::fs::symlink_metadata(path)
+        && !m.is_file()
+    {
+        crate::fail!(
+            "'{shown}' exists and is not a regular file (a folder, device, pipe or link); will not replace it"
+        );
+    }
     let result = (|| -> std::io::Result<()> {
-        let mut f = std::fs::File::create(&tmp)?;
+        // A file left at the temporary name (or planted there) is removed, never followed.
+        let _ = std::fs::remove_file(&tmp);
+        let mut f = std::fs::OpenOptions::new()
+            .write(true)
+            .create_new(true)
+            .open(&tmp)?;
         f.write_all(bytes)?;
         f.sync_all()?;
         std::fs::rename(&tmp, path)

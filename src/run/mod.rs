@@ -4,6 +4,8 @@ pub mod atomic;
 pub mod compare;
 pub mod curve_read;
 pub mod recording;
+pub mod safe_path;
+pub mod validate;
 
 use crate::error::{Context, Error, Result};
 use crate::hits::{CheckConfig, TriggerConfig};
@@ -11,6 +13,7 @@ use crate::modes::{LeftOut, Mode, ModeConfig, ModeSearch};
 use crate::pipeline::{Analysis, HitSummary};
 use crate::signal::{ChannelInfo, Roles};
 use crate::spectra::{Basis, Curve, Estimator, Spectra, WindowConfig};
+pub use safe_path::FileKind;
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
 
@@ -63,6 +66,18 @@ pub struct RecordingRef {
     pub frames: u64,
     /// "float32 in channel units" or "int16 counts" etc.
     pub encoding: String,
+    /// Stretches lost before they reached the recording: (WAV frame where the stream
+    /// jumps, frames lost). The WAV holds only what arrived; re-analysis skips ahead here.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub gaps: Vec<(u64, u64)>,
+}
+
+/// What `write_run_files` records about the WAV of a run.
+#[derive(Debug, Clone, Copy)]
+pub struct RecordingNote<'a> {
+    pub wav: &'a Path,
+    pub encoding: &'a str,
+    pub gaps: &'a [(u64, u64)],
 }
 
 /// The mode list of one variant, with everything needed to reproduce it.
@@ -188,19 +203,134 @@ impl RunFile {
         }
     }
 
+    /// Read and check a run file: untrusted input (see `check`). Text meant for a
+    /// terminal comes back cleaned of control and escape sequences.
     pub fn load(path: &Path) -> Result<Self> {
         let shown = path.display();
+        safe_path::check_input(path)?;
+        let meta = std::fs::metadata(path).with_context(|| format!("cannot read '{shown}'"))?;
+        if meta.len() > MAX_RUN_FILE_BYTES {
+            crate::fail!(
+                "'{shown}' is {} MiB, too large for a run file (the most is {} MiB)",
+                meta.len() >> 20,
+                MAX_RUN_FILE_BYTES >> 20
+            );
+        }
         let text =
             std::fs::read_to_string(path).with_context(|| format!("cannot read '{shown}'"))?;
-        let run: RunFile = serde_json::from_str(&text)
-            .map_err(|e| Error::new(format!("'{shown}' is not a tapmodes run file: {e}")))?;
+        Self::from_json(&text, &shown.to_string())
+    }
+
+    /// Parse, check and clean the text of a run file called `name`.
+    pub fn from_json(text: &str, name: &str) -> Result<Self> {
+        let mut run: RunFile = serde_json::from_str(text).map_err(|e| {
+            Error::new(format!(
+                "'{name}' is not a tapmodes run file: {}",
+                validate::clean_text(&e.to_string(), false)
+            ))
+        })?;
         if run.schema_version > SCHEMA_VERSION {
             crate::fail!(
-                "'{shown}' has schema version {} but this tool reads up to {SCHEMA_VERSION}",
+                "'{name}' has schema version {} but this tool reads up to {SCHEMA_VERSION}",
                 run.schema_version
             );
         }
+        run.clean();
+        run.check(name)?;
         Ok(run)
+    }
+
+    /// Clean every text that may reach a terminal.
+    fn clean(&mut self) {
+        let c = |s: &mut String| *s = validate::clean_text(s, false);
+        c(&mut self.variant.label);
+        self.variant.note = validate::clean_text(&self.variant.note, true);
+        c(&mut self.setup.source);
+        for ch in &mut self.setup.channels {
+            c(&mut ch.name);
+            c(&mut ch.unit);
+        }
+        for n in &mut self.notes {
+            c(n);
+        }
+        for h in &mut self.hits {
+            c(&mut h.reason);
+        }
+        for m in &mut self.modes {
+            c(&mut m.method);
+        }
+    }
+
+    /// The settings against the same limits as the command line, and the numbers other
+    /// commands rely on (mode frequencies, hit positions).
+    pub fn check(&self, name: &str) -> Result<()> {
+        let what = format!("run file '{name}'");
+        let s = &self.setup;
+        let info = crate::signal::StreamInfo {
+            source: s.source.clone(),
+            sample_rate: s.sample_rate_hz,
+            channels: s.channels.clone(),
+        };
+        validate::check_stream(&info, &what)?;
+        if s.trigger.channel >= s.channels.len() {
+            crate::fail!(
+                "{what} names channel {} as the trigger channel, but there are {} channels",
+                s.trigger.channel,
+                s.channels.len()
+            );
+        }
+        validate::check_analysis(&self.analysis_config(), &info, &s.roles, &what)?;
+        for (i, m) in self.modes.iter().enumerate() {
+            let ok = m.frequency_hz.is_finite()
+                && m.frequency_hz > 0.0
+                && m.damping_ratio.is_none_or(|z| z.is_finite() && z >= 0.0)
+                && m.magnitude.is_finite();
+            if !ok {
+                crate::fail!(
+                    "{what}: mode {} has a frequency, damping or magnitude that is not a usable number",
+                    i + 1
+                );
+            }
+        }
+        if self.hits.len() > MAX_HITS || self.modes.len() > MAX_HITS {
+            crate::fail!("{what} lists more than {MAX_HITS} hits or modes");
+        }
+        if self.hits_accepted > self.hits_total {
+            crate::fail!(
+                "{what} says {} of {} hits were accepted",
+                self.hits_accepted,
+                self.hits_total
+            );
+        }
+        if let Some(r) = &self.recording {
+            let total = r.gaps.iter().try_fold(0u64, |a, g| a.checked_add(g.1));
+            if total.is_none_or(|t| t > r.frames) || r.gaps.iter().any(|g| g.0 > r.frames) {
+                crate::fail!("{what} lists lost stretches that do not fit its recording");
+            }
+        }
+        Ok(())
+    }
+
+    /// The analysis settings the run was made with.
+    pub fn analysis_config(&self) -> crate::pipeline::AnalysisConfig {
+        let s = &self.setup;
+        crate::pipeline::AnalysisConfig {
+            trigger: crate::pipeline::TriggerChoice {
+                channel: Some(s.trigger.channel),
+                level: s.trigger.level,
+                pretrigger_s: s.trigger.pretrigger_s,
+                record_s: s.trigger.record_s,
+                holdoff_s: s.trigger.holdoff_s,
+            },
+            checks: s.checks.clone(),
+            spectra: crate::spectra::SpectraConfig {
+                windows: s.windows.clone(),
+                pad: s.fft.zero_pad,
+            },
+            modes: s.mode_search.clone(),
+            estimator: s.estimator,
+            basis: Some(s.basis),
+        }
     }
 
     pub fn save(&self, path: &Path) -> Result<()> {
@@ -210,13 +340,24 @@ impl RunFile {
         atomic::write_atomic(path, text.as_bytes())
     }
 
-    /// Absolute-or-cwd-relative path of the recording, resolved against the JSON's folder.
-    pub fn wav_path(&self, json_path: &Path) -> Option<PathBuf> {
+    /// Path of the recording, resolved against the JSON's folder and confined to it
+    /// (see `safe_path::resolve_ref`); `None` when the run names no recording.
+    pub fn wav_path(&self, json_path: &Path) -> Option<Result<PathBuf>> {
         let r = self.recording.as_ref()?;
-        let dir = json_path.parent().unwrap_or(Path::new(""));
-        Some(dir.join(&r.wav))
+        Some(safe_path::resolve_ref(json_path, &r.wav, "recording"))
+    }
+
+    /// Path of the curve CSV, confined like the recording.
+    pub fn csv_path(&self, json_path: &Path) -> Option<Result<PathBuf>> {
+        let c = self.frf_csv.as_ref()?;
+        Some(safe_path::resolve_ref(json_path, c, "curve table"))
     }
 }
+
+/// Largest run file read, bytes.
+pub const MAX_RUN_FILE_BYTES: u64 = 64 << 20;
+/// Most hits or modes a run file may list.
+pub const MAX_HITS: usize = 100_000;
 
 /// Path of `target` relative to the folder of `json` (falls back to `target` as given).
 pub fn relative_to(json: &Path, target: &Path) -> String {
@@ -320,16 +461,17 @@ pub fn write_run_files(
     analysis: &Analysis,
     variant: Variant,
     json_path: &Path,
-    recording: Option<(&Path, &str)>,
+    recording: Option<RecordingNote<'_>>,
 ) -> Result<RunFile> {
     let spectra = analysis.spectra();
     let found = analysis.search(&spectra);
     let mut run = RunFile::from_analysis(analysis, &spectra, &found, variant);
-    if let Some((wav, encoding)) = recording {
+    if let Some(r) = recording {
         run.recording = Some(RecordingRef {
-            wav: relative_to(json_path, wav),
+            wav: relative_to(json_path, r.wav),
             frames: analysis.detector().position(),
-            encoding: encoding.to_string(),
+            encoding: r.encoding.to_string(),
+            gaps: r.gaps.to_vec(),
         });
     }
     if let Some(curve) = (spectra.hits > 0)

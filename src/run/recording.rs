@@ -4,6 +4,16 @@
 //!
 //! The WAV header is brought up to date at every `flush`, so after a crash or an unplugged
 //! device the file on disk is a valid WAV holding everything up to the last flush.
+//!
+//! Samples lost on the way (link loss, overruns) are not written: the WAV holds only what
+//! arrived, and [`RecordingWriter::gaps`] lists where stretches are missing (WAV frame,
+//! frames lost) for the run file, so re-analysis sees the same gaps the live stream had
+//! and no filler the trigger could fire on.
+//!
+//! A RIFF WAV's sizes are 32-bit, so a recording stops growing at [`MAX_WAV_BYTES`]
+//! (just under 4 GiB): `append` then fails with a clear sentence and the file on disk stays
+//! a valid WAV of everything up to the limit (16-bit stereo at 48 kHz reaches it after
+//! about 6 hours).
 
 use crate::error::{Context, Error, Result};
 use crate::signal::{Block, StreamInfo};
@@ -15,16 +25,73 @@ pub const FLOAT_ENCODING: &str = "float32 in channel units";
 /// Encoding of a recording written as 16-bit converter codes (value = code x scale).
 pub const COUNTS16_ENCODING: &str = "counts int16 (value = code x scale)";
 
+/// Largest WAV this writer makes: the RIFF size field (32 bits) minus room for the header.
+pub const MAX_WAV_BYTES: u64 = u32::MAX as u64 - 1024;
+
 pub struct RecordingWriter {
     path: PathBuf,
     writer: Option<hound::WavWriter<BufWriter<std::fs::File>>>,
+    /// Frames written to the file.
     frames: u64,
+    /// Stream position of the next frame (written frames plus frames lost).
+    position: u64,
+    gaps: Vec<(u64, u64)>,
+    bytes_per_frame: u64,
+    limit_bytes: u64,
     /// Some(scales) when writing 16-bit codes.
     codes: Option<Vec<f64>>,
 }
 
 impl RecordingWriter {
+    /// Create `DIR/STEM.wav` for a new run under the first stem from `label` that no other
+    /// run in `dir` has taken (`label`, `label-2`, ...). The WAV is created exclusively, so
+    /// two writers started together can never take the same name; a stem whose JSON already
+    /// exists is passed over.
+    pub fn create_fresh(dir: &Path, label: &str, info: &StreamInfo) -> Result<(Self, String)> {
+        let base = clean_stem(label);
+        for i in 1..10_000u32 {
+            let stem = if i == 1 {
+                base.clone()
+            } else {
+                format!("{base}-{i}")
+            };
+            let other = |ext: &str| std::fs::symlink_metadata(dir.join(format!("{stem}.{ext}")));
+            if other("json").is_ok() || other("csv").is_ok() {
+                continue;
+            }
+            let wav = dir.join(format!("{stem}.wav"));
+            match std::fs::OpenOptions::new()
+                .write(true)
+                .read(true)
+                .create_new(true)
+                .open(&wav)
+            {
+                Ok(file) => return Ok((Self::with_file(&wav, file, info)?, stem)),
+                Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => continue,
+                Err(e) => {
+                    return Err(
+                        Error::from(e).context(format!("cannot create '{}'", wav.display()))
+                    );
+                }
+            }
+        }
+        crate::fail!(
+            "every run name from '{base}' to '{base}-9999' is taken in '{}'",
+            dir.display()
+        )
+    }
+
+    /// Create (or replace) the recording at `path`.
     pub fn create(path: &Path, info: &StreamInfo) -> Result<Self> {
+        crate::run::safe_path::check_output(path, crate::run::safe_path::FileKind::Wav, &[])?;
+        let file = std::fs::File::create(path)
+            .map_err(Error::from)
+            .with_context(|| format!("cannot create '{}'", path.display()))?;
+        Self::with_file(path, file, info)
+    }
+
+    fn with_file(path: &Path, file: std::fs::File, info: &StreamInfo) -> Result<Self> {
+        crate::run::validate::check_stream(info, "the stream to record")?;
         // A converter of 8 to 16 bits: full scale is 2^7..2^15 steps of `scale`.
         let codes = info
             .channels
@@ -44,13 +111,18 @@ impl RecordingWriter {
                 hound::SampleFormat::Float
             },
         };
-        let writer = hound::WavWriter::create(path, spec)
+        let bytes_per_frame = u64::from(spec.channels) * u64::from(spec.bits_per_sample / 8);
+        let writer = hound::WavWriter::new(BufWriter::new(file), spec)
             .map_err(|e| Error::new(e.to_string()))
             .with_context(|| format!("cannot create '{}'", path.display()))?;
         Ok(RecordingWriter {
             path: path.to_path_buf(),
             writer: Some(writer),
             frames: 0,
+            position: 0,
+            gaps: Vec::new(),
+            bytes_per_frame,
+            limit_bytes: MAX_WAV_BYTES,
             codes,
         })
     }
@@ -64,25 +136,36 @@ impl RecordingWriter {
         }
     }
 
-    /// Append a block. Samples lost before it (a gap in `block.start`) are written as
-    /// zeros, so that stream positions in the run file stay positions in the WAV.
+    /// Lower the size limit (tests of the limit without writing 4 GiB).
+    pub fn with_limit_bytes(mut self, limit: u64) -> Self {
+        self.limit_bytes = limit.min(MAX_WAV_BYTES);
+        self
+    }
+
+    /// Stretches lost before they reached the recording: (WAV frame, frames lost).
+    pub fn gaps(&self) -> &[(u64, u64)] {
+        &self.gaps
+    }
+
+    /// Append a block. Samples lost before it (a gap in `block.start`) are not written;
+    /// the gap is listed in [`Self::gaps`]. Past the size limit nothing is written and an
+    /// error says so; what was written stays a valid WAV.
     pub fn append(&mut self, block: &Block) -> Result<()> {
         let Some(w) = self.writer.as_mut() else {
             return Ok(());
         };
-        let n_ch = block.channels.len();
-        for _ in self.frames..block.start {
-            for _ in 0..n_ch {
-                let r = if self.codes.is_some() {
-                    w.write_sample(0i16)
-                } else {
-                    w.write_sample(0.0f32)
-                };
-                r.map_err(|e| Error::new(e.to_string()))
-                    .with_context(|| format!("cannot write '{}'", self.path.display()))?;
-            }
+        let bytes = 44 + (self.frames + block.len() as u64) * self.bytes_per_frame;
+        if bytes > self.limit_bytes {
+            crate::fail!(
+                "the recording '{}' reached the WAV size limit of {} MiB (the format's 32-bit sizes); it holds everything up to here, start a new run to go on",
+                self.path.display(),
+                self.limit_bytes >> 20
+            );
         }
-        self.frames = self.frames.max(block.start);
+        if block.start > self.position {
+            self.gaps.push((self.frames, block.start - self.position));
+        }
+        self.position = self.position.max(block.start);
         for k in 0..block.len() {
             for (c, ch) in block.channels.iter().enumerate() {
                 let r = match &self.codes {
@@ -97,6 +180,7 @@ impl RecordingWriter {
             }
         }
         self.frames += block.len() as u64;
+        self.position += block.len() as u64;
         Ok(())
     }
 
@@ -121,6 +205,28 @@ impl RecordingWriter {
                 .with_context(|| format!("cannot finish '{}'", self.path.display()))?;
         }
         Ok(())
+    }
+}
+
+/// A file stem from a label: letters, digits, `-`, `_` and `.` kept, the rest `_`; never
+/// empty, never starting with a dot.
+pub fn clean_stem(label: &str) -> String {
+    let clean: String = label
+        .chars()
+        .take(100)
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || "-_.".contains(c) {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect();
+    let clean = clean.trim_start_matches('.').to_string();
+    if clean.is_empty() {
+        "variant".to_string()
+    } else {
+        clean
     }
 }
 

@@ -1,66 +1,75 @@
-//! WAV replay: streams any PCM WAV (8/16/24/32-bit integer or 32-bit float) as blocks.
+//! WAV replay: streams any PCM WAV (8/16/24/32-bit integer, 24 bits left-justified in 32,
+//! 32/64-bit float; RIFF, RF64 or BW64) as blocks.
 //!
 //! Integer samples arrive as raw counts and float samples as stored, each times the
 //! channel's scale (1.0 unless the caller calibrates). Memory stays flat: one block at a time.
+//! The header is untrusted: see `wav_header`.
 
 use crate::error::{Error, Result};
 use crate::signal::{Block, ChannelInfo, Role, StreamInfo};
 use crate::source::Source;
-use std::fs::File;
-use std::io::BufReader;
-use std::path::{Path, PathBuf};
+use crate::source::wav_header::{SampleKind, read_header};
+use std::io::{BufReader, Read, Seek, SeekFrom};
+use std::path::Path;
 
 /// Frames per block read from the file.
 pub const WAV_BLOCK: usize = 8192;
 
-/// Sample layouts read in bulk (the container size equals the sample size); others go
-/// through hound sample by sample.
-#[derive(Debug, Clone, Copy, PartialEq)]
-enum Bulk {
-    I16,
-    I32,
-    F32,
-}
-
-enum Reader {
-    Hound(hound::WavReader<BufReader<File>>),
-    /// Positioned at the first sample of the data chunk.
-    Bulk(BufReader<File>, Bulk),
-}
+/// Anything a WAV can be read from: a file, or bytes in memory (tests, fuzzing).
+pub trait WavInput: Read + Seek + Send {}
+impl<T: Read + Seek + Send> WavInput for T {}
 
 pub struct WavSource {
-    path: PathBuf,
-    reader: Reader,
+    name: String,
+    reader: Box<dyn WavInput>,
+    kind: SampleKind,
+    data_offset: u64,
     bytes: Vec<u8>,
     info: StreamInfo,
     frames_total: u64,
     next: u64,
     block: usize,
+    /// Stretches of the file (start frame, length) that were lost on the way and stored
+    /// as filler: skipped, so blocks show them as gaps in `start`.
+    gaps: Vec<(u64, u64)>,
     /// Optional real-time pacing: the wall-clock start and the rate to keep.
     pace: Option<std::time::Instant>,
 }
 
 impl WavSource {
     pub fn open(path: &Path) -> Result<Self> {
-        let shown = path.display();
-        let reader = hound::WavReader::open(path).map_err(|e| describe(e, path))?;
-        let spec = reader.spec();
-        if spec.channels == 0 {
-            crate::fail!("'{shown}' has zero channels");
-        }
-        let float = spec.sample_format == hound::SampleFormat::Float;
-        if float && spec.bits_per_sample != 32 {
-            crate::fail!(
-                "'{shown}' uses {}-bit float samples; only 32-bit float is supported",
-                spec.bits_per_sample
-            );
-        }
-        let full_scale = if float {
-            1.0
-        } else {
-            (1u64 << (spec.bits_per_sample - 1)) as f64
-        };
-        let channels = (0..spec.channels)
+        let shown = path.display().to_string();
+        crate::run::safe_path::check_input(path)?;
+        let file = std::fs::File::open(path).map_err(|e| {
+            if e.kind() == std::io::ErrorKind::NotFound {
+                Error::new(format!("cannot open '{shown}': no such file"))
+            } else {
+                Error::new(format!(
+                    "cannot read '{shown}': {}",
+                    crate::error::describe_io(&e)
+                ))
+            }
+        })?;
+        let len = file
+            .metadata()
+            .map_err(|e| Error::new(format!("cannot read '{shown}': {e}")))?
+            .len();
+        Self::from_reader(&shown, Box::new(BufReader::new(file)), len)
+    }
+
+    /// A WAV held in memory.
+    pub fn from_bytes(name: &str, bytes: Vec<u8>) -> Result<Self> {
+        let len = bytes.len() as u64;
+        Self::from_reader(name, Box::new(std::io::Cursor::new(bytes)), len)
+    }
+
+    fn from_reader(name: &str, mut reader: Box<dyn WavInput>, len: u64) -> Result<Self> {
+        let h = read_header(&mut reader, len, name)?;
+        reader
+            .seek(SeekFrom::Start(h.data_offset))
+            .map_err(|e| Error::new(format!("cannot read '{name}': {e}")))?;
+        let full_scale = h.kind.full_scale();
+        let channels = (0..h.channels)
             .map(|i| ChannelInfo {
                 name: format!("ch{i}"),
                 role: Role::Unused,
@@ -69,29 +78,21 @@ impl WavSource {
                 full_scale: Some(full_scale),
             })
             .collect();
-        let frames_total = reader.duration() as u64;
-        let bulk = match (spec.sample_format, spec.bits_per_sample) {
-            (hound::SampleFormat::Int, 16) => Some(Bulk::I16),
-            (hound::SampleFormat::Int, 32) => Some(Bulk::I32),
-            (hound::SampleFormat::Float, 32) => Some(Bulk::F32),
-            _ => None,
-        };
-        let reader = match bulk {
-            Some(kind) => Reader::Bulk(reader.into_inner(), kind),
-            None => Reader::Hound(reader),
-        };
         Ok(WavSource {
             bytes: Vec::new(),
             info: StreamInfo {
-                source: format!("wav {}", path.display()),
-                sample_rate: spec.sample_rate as f64,
+                source: format!("wav {name}"),
+                sample_rate: h.sample_rate,
                 channels,
             },
-            path: path.to_path_buf(),
+            name: name.to_string(),
             reader,
-            frames_total,
+            kind: h.kind,
+            data_offset: h.data_offset,
+            frames_total: h.frames,
             next: 0,
             block: WAV_BLOCK,
+            gaps: Vec::new(),
             pace: None,
         })
     }
@@ -99,17 +100,30 @@ impl WavSource {
     /// Replay no faster than real time (for live-like use of a recording).
     pub fn real_time(mut self) -> Self {
         self.pace = Some(std::time::Instant::now());
-        self.block = (self.info.sample_rate / 50.0).ceil() as usize;
+        self.block = (self.info.sample_rate / 50.0).ceil().max(1.0) as usize;
         self
     }
 
     pub fn with_block_len(mut self, n: usize) -> Self {
-        self.block = n.max(1);
+        self.block = n.clamp(1, 1 << 20);
         self
     }
 
     pub fn frames(&self) -> u64 {
         self.frames_total
+    }
+
+    /// Read no further than `frames` (a run that ended before its recording did).
+    pub fn limit_frames(&mut self, frames: u64) {
+        self.frames_total = self.frames_total.min(frames);
+    }
+
+    /// Skip the stretches a run file lists as lost (start frame, length), so the blocks
+    /// carry the same gaps the live stream had.
+    pub fn skip_gaps(&mut self, gaps: &[(u64, u64)]) {
+        let mut g: Vec<(u64, u64)> = gaps.iter().copied().filter(|g| g.1 > 0).collect();
+        g.sort_unstable();
+        self.gaps = g;
     }
 
     /// Set a channel's unit and scale (unit per count); full scale follows.
@@ -121,41 +135,19 @@ impl WavSource {
         }
     }
 
+    /// Set a channel's clipping level in its unit (`None`: unknown), as the run recorded it.
+    pub fn set_full_scale(&mut self, channel: usize, full_scale: Option<f64>) {
+        if let Some(c) = self.info.channels.get_mut(channel) {
+            c.full_scale = full_scale;
+        }
+    }
+
     /// Name the channels and declare their roles (as a run file records them).
     pub fn set_channel(&mut self, channel: usize, name: &str, role: Role) {
         if let Some(c) = self.info.channels.get_mut(channel) {
             c.name = name.to_string();
             c.role = role;
         }
-    }
-}
-
-fn describe(e: hound::Error, path: &Path) -> Error {
-    let shown = path.display();
-    match e {
-        hound::Error::IoError(io) if io.kind() == std::io::ErrorKind::NotFound => {
-            Error::new(format!("cannot open '{shown}': no such file"))
-        }
-        hound::Error::IoError(io)
-            if io.kind() == std::io::ErrorKind::UnexpectedEof
-                || io.to_string().contains("enough bytes") =>
-        {
-            Error::new(format!("'{shown}' ends early: the WAV file is truncated"))
-        }
-        hound::Error::IoError(io) => Error::new(format!(
-            "cannot read '{shown}': {}",
-            crate::error::describe_io(&io)
-        )),
-        hound::Error::FormatError(what) if what.contains("RIFF") || what.contains("WAVE") => {
-            Error::new(format!("'{shown}' is not a WAV file ({what})"))
-        }
-        hound::Error::FormatError(what) => {
-            Error::new(format!("'{shown}' is not a valid WAV file: {what}"))
-        }
-        hound::Error::Unsupported => Error::new(format!(
-            "'{shown}' uses a WAV encoding this tool does not read (only PCM integer and 32-bit float)"
-        )),
-        other => Error::new(format!("cannot read '{shown}': {other}")),
     }
 }
 
@@ -169,59 +161,60 @@ impl Source for WavSource {
     }
 
     fn next_block(&mut self) -> Result<Option<Block>> {
+        // Step over a lost stretch that starts here.
+        while let Some(&(at, len)) = self.gaps.first() {
+            if at > self.next {
+                break;
+            }
+            self.gaps.remove(0);
+            let end = at.saturating_add(len);
+            if end > self.next {
+                self.next = end.min(self.frames_total);
+                let off = self.data_offset
+                    + self.next * (self.kind.bytes() * self.info.channels.len()) as u64;
+                self.reader
+                    .seek(SeekFrom::Start(off))
+                    .map_err(|e| Error::new(format!("cannot read '{}': {e}", self.name)))?;
+            }
+        }
         if self.next >= self.frames_total {
             return Ok(None);
         }
         let n_ch = self.info.channels.len();
-        let frames = (self.frames_total - self.next).min(self.block as u64) as usize;
-        let mut channels = vec![Vec::with_capacity(frames); n_ch];
-        let scales: Vec<f64> = self.info.channels.iter().map(|c| c.scale).collect();
-        let shown = self.path.display();
-        let total = frames * n_ch;
-        let mut read = 0usize;
-        if let Reader::Bulk(raw, kind) = &mut self.reader {
-            let width = if *kind == Bulk::I16 { 2 } else { 4 };
-            self.bytes.resize(total * width, 0);
-            if let Err(e) = std::io::Read::read_exact(raw, &mut self.bytes) {
-                return Err(if e.kind() == std::io::ErrorKind::UnexpectedEof {
-                    Error::new(format!("'{shown}' ends early: the WAV file is truncated"))
-                } else {
-                    Error::new(format!(
-                        "cannot read '{shown}': {}",
-                        crate::error::describe_io(&e)
-                    ))
-                });
-            }
-            for (i, b) in self.bytes.chunks_exact(width).enumerate() {
-                let c = i % n_ch;
-                let v = match kind {
-                    Bulk::I16 => i16::from_le_bytes([b[0], b[1]]) as f64,
-                    Bulk::I32 => i32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64,
-                    Bulk::F32 => {
-                        let v = f32::from_le_bytes([b[0], b[1], b[2], b[3]]) as f64;
-                        if !v.is_finite() {
-                            crate::fail!(
-                                "'{shown}' holds a sample that is not a finite number (channel {c}, frame {})",
-                                self.next + (i / n_ch) as u64
-                            );
-                        }
-                        v
-                    }
-                };
-                channels[c].push(v * scales[c]);
-            }
-            read = total;
-        } else if let Reader::Hound(reader) = &mut self.reader {
-            // Only integer layouts other than 16/32-bit get here (32-bit float is bulk).
-            for s in reader.samples::<i32>().take(total) {
-                let v = s.map_err(|e| describe(e, &self.path))? as f64;
-                let c = read % n_ch;
-                channels[c].push(v * scales[c]);
-                read += 1;
-            }
+        let mut frames = (self.frames_total - self.next).min(self.block as u64);
+        if let Some(&(at, _)) = self.gaps.first() {
+            frames = frames.min(at - self.next);
         }
-        if read < total {
-            crate::fail!("'{shown}' ends early: the WAV file is truncated");
+        let frames = frames as usize;
+        let scales: Vec<f64> = self.info.channels.iter().map(|c| c.scale).collect();
+        let width = self.kind.bytes();
+        self.bytes.resize(frames * n_ch * width, 0);
+        if let Err(e) = self.reader.read_exact(&mut self.bytes) {
+            return Err(if e.kind() == std::io::ErrorKind::UnexpectedEof {
+                Error::new(format!(
+                    "'{}' ends early: the WAV file is truncated",
+                    self.name
+                ))
+            } else {
+                Error::new(format!(
+                    "cannot read '{}': {}",
+                    self.name,
+                    crate::error::describe_io(&e)
+                ))
+            });
+        }
+        let mut channels = vec![Vec::with_capacity(frames); n_ch];
+        for (i, b) in self.bytes.chunks_exact(width).enumerate() {
+            let c = i % n_ch;
+            let v = self.kind.decode(b) * scales[c];
+            if !v.is_finite() {
+                crate::fail!(
+                    "'{}' holds a sample that is not a finite number (channel {c}, frame {})",
+                    self.name,
+                    self.next + (i / n_ch) as u64
+                );
+            }
+            channels[c].push(v);
         }
         let block = Block {
             start: self.next,

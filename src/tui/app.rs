@@ -327,11 +327,11 @@ pub fn list_runs(out_dir: &Path, given: &[PathBuf]) -> Vec<PathBuf> {
 /// takes part in the comparison).
 pub fn load_run(path: &Path) -> std::result::Result<LoadedRun, String> {
     let run = RunFile::load(path).map_err(|e| e.to_string())?;
-    let dir = path.parent().unwrap_or(Path::new(""));
+    // The CSV path comes from the run file: confined to its folder and to regular files.
     let curve = run
-        .frf_csv
-        .as_ref()
-        .and_then(|c| read_curve_csv(&dir.join(c)).ok());
+        .csv_path(path)
+        .and_then(|p| p.ok())
+        .and_then(|p| read_curve_csv(&p).ok());
     let label = if run.variant.label.is_empty() {
         path.file_stem()
             .map_or("run".into(), |s| s.to_string_lossy().into_owned())

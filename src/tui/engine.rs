@@ -288,9 +288,12 @@ impl Engine {
                 setup.out_dir.display()
             ))
         })?;
-        let stem = free_stem(&setup.out_dir, &setup.label);
+        let (recorder, stem) = RecordingWriter::create_fresh(
+            &setup.out_dir,
+            &sanitize_stem(&setup.label),
+            &setup.info,
+        )?;
         let wav_path = setup.out_dir.join(format!("{stem}.wav"));
-        let recorder = RecordingWriter::create(&wav_path, &setup.info)?;
         let fs = setup.info.sample_rate;
         let mut shown = vec![analysis.detector().trigger_config().channel];
         if !shown.contains(&setup.roles.response) {
@@ -504,9 +507,14 @@ impl Engine {
         cfg.estimator = self.analysis.config().estimator;
         cfg.basis = self.analysis.config().basis;
         self.analysis = Analysis::new(&self.setup.info, self.setup.roles, cfg, true)?;
-        self.stem = free_stem(&self.setup.out_dir, &self.label);
+        let (recorder, stem) = RecordingWriter::create_fresh(
+            &self.setup.out_dir,
+            &sanitize_stem(&self.label),
+            &self.setup.info,
+        )?;
+        self.stem = stem;
         self.wav_path = self.setup.out_dir.join(format!("{}.wav", self.stem));
-        self.recorder = Some(RecordingWriter::create(&self.wav_path, &self.setup.info)?);
+        self.recorder = Some(recorder);
         self.wrote_json = false;
         self.dirty = false;
         Ok(())
@@ -530,7 +538,16 @@ impl Engine {
             .recorder
             .as_ref()
             .map_or(WAV_ENCODING, |r| r.encoding());
-        match write_run_files(&self.analysis, variant, &json, Some((&wav, encoding))) {
+        let gaps = self
+            .recorder
+            .as_ref()
+            .map_or_else(Vec::new, |r| r.gaps().to_vec());
+        let note = crate::run::RecordingNote {
+            wav: &wav,
+            encoding,
+            gaps: &gaps,
+        };
+        match write_run_files(&self.analysis, variant, &json, Some(note)) {
             Ok(run) => {
                 self.wrote_json = true;
                 self.dirty = false;

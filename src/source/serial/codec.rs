@@ -108,7 +108,17 @@ pub struct LinkStats {
     pub packets_corrupt: u64,
     pub resyncs: u64,
     pub junk_lines: u64,
+    /// Binary form: jumps of the frame counter beyond [`MAX_FRAME_JUMP_S`] of stream, taken
+    /// as a restart of the device's counter (no loss counted, a note is kept).
+    pub counter_jumps: u64,
 }
+
+/// Longest forward jump of the frame counter, in seconds of stream, still counted as lost
+/// frames; a longer one is taken as a restart of the counter (a hot-plugged sensor, a
+/// firmware reset without a header), so that one bad counter cannot fake hours of loss.
+pub const MAX_FRAME_JUMP_S: f64 = 10.0;
+/// ... but never fewer frames than this.
+pub const MIN_FRAME_JUMP: u64 = 65_536;
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum WireForm {
@@ -360,6 +370,15 @@ impl Decoder {
             return Some(WireForm::Text);
         }
         if self.bytes >= SNIFF_LIMIT as u64 {
+            // A first line longer than the sniffing window that is all printable text (a
+            // long header with many channels) is waited for up to the longest line.
+            if self.newlines == 0
+                && self.zeros == 0
+                && self.printable == self.bytes
+                && self.bytes < MAX_LINE_LEN as u64
+            {
+                return None;
+            }
             let printable = self.printable as f64 / self.bytes as f64;
             return Some(
                 if printable >= 0.9 && self.newlines > 0 && self.zeros == 0 {
@@ -483,7 +502,13 @@ impl TextDecoder {
                     return;
                 }
             };
-            values.push(v * h.scale(i));
+            let v = v * h.scale(i);
+            if !v.is_finite() {
+                // Finite as sent but not once scaled: never let it reach the recording.
+                self.stats.junk_lines += 1;
+                return;
+            }
+            values.push(v);
         }
         if values.len() != n {
             self.stats.junk_lines += 1;
@@ -565,6 +590,7 @@ fn parse_text_header(body: &str) -> HeaderLine {
 }
 
 fn push_note(notes: &mut Vec<String>, note: String) {
+    let note = crate::run::validate::clean_text(&note, false);
     if notes.len() >= MAX_NOTES {
         notes.remove(0);
     }
@@ -776,9 +802,26 @@ impl BinaryDecoder {
             return false;
         }
         let n_frames = data.len() / stride;
+        // Scaled values must be finite: a header scale so large that a sample overflows
+        // makes the packet unusable, whatever its CRC says.
+        if h.scales
+            .iter()
+            .any(|s| !(s * f64::from(i32::MAX)).is_finite())
+        {
+            return false;
+        }
         if let Some(expected) = self.next_frame {
             let gap = first.wrapping_sub(expected);
-            if gap < 0x8000_0000 {
+            let limit = ((h.rate_hz * MAX_FRAME_JUMP_S) as u64).max(MIN_FRAME_JUMP);
+            if u64::from(gap) > limit && gap < 0x8000_0000 {
+                self.stats.counter_jumps += 1;
+                push_note(
+                    &mut self.notes,
+                    format!(
+                        "the frame counter jumped ahead by {gap} frames (more than {MAX_FRAME_JUMP_S} s): taken as a restart of the counter, not as lost frames"
+                    ),
+                );
+            } else if gap < 0x8000_0000 {
                 self.frames_lost += u64::from(gap);
             }
         }

@@ -51,6 +51,8 @@ pub struct SerialSource {
     last_data: Instant,
     block_len: usize,
     buf: Vec<u8>,
+    /// A link failure held back until the frames received before it are delivered.
+    deferred: Option<Error>,
 }
 
 impl SerialSource {
@@ -114,6 +116,7 @@ impl SerialSource {
             }
         }
         let info = info_from(name, &header);
+        crate::run::validate::check_stream(&info, &format!("the stream header of '{name}'"))?;
         Ok(SerialSource {
             name: name.to_string(),
             link,
@@ -127,6 +130,7 @@ impl SerialSource {
             gap: 0,
             last_data: Instant::now(),
             buf,
+            deferred: None,
         })
     }
 
@@ -157,9 +161,9 @@ fn info_from(name: &str, h: &StreamHeader) -> StreamInfo {
         sample_rate: h.rate_hz,
         channels: (0..h.channels.len())
             .map(|i| ChannelInfo {
-                name: h.channels[i].clone(),
+                name: crate::run::validate::clean_text(&h.channels[i], false),
                 role: Role::Unused,
-                unit: h.unit(i).to_string(),
+                unit: crate::run::validate::clean_text(h.unit(i), false),
                 scale: h.scale(i),
                 full_scale: None,
             })
@@ -184,16 +188,27 @@ impl Source for SerialSource {
     }
 
     fn next_block(&mut self) -> Result<Option<Block>> {
+        if let Some(e) = self.deferred.take() {
+            return Err(e);
+        }
         let started = Instant::now();
         let mut out = Vec::new();
         while self.pending.len() < self.block_len && started.elapsed() < Duration::from_millis(40) {
             let n = match self.link.read_some(&mut self.buf) {
                 Ok(n) => n,
-                Err(e) => crate::fail!(
-                    "the serial device '{}' stopped ({}): unplugged or reset? Hits accepted so far are saved",
-                    self.name,
-                    crate::error::describe_io(&e)
-                ),
+                Err(e) => {
+                    let e = Error::new(format!(
+                        "the serial device '{}' stopped ({}): unplugged or reset? Hits accepted so far are saved",
+                        self.name,
+                        crate::error::describe_io(&e)
+                    ));
+                    if self.pending.is_empty() {
+                        return Err(e);
+                    }
+                    // Deliver what arrived before the failure first: nothing taken is lost.
+                    self.deferred = Some(e);
+                    break;
+                }
             };
             if n == 0 {
                 if self.last_data.elapsed() > SILENCE_LIMIT {
@@ -214,12 +229,27 @@ impl Source for SerialSource {
             for d in out.drain(..) {
                 match d {
                     Decoded::Header(h) => {
+                        if h.scales != self.header.scales || h.units != self.header.units {
+                            crate::fail!(
+                                "'{}' sent a new header with other scales or units ({}): the values would change meaning mid-run, so the capture stops; start a new run",
+                                self.name,
+                                h.scales
+                                    .iter()
+                                    .zip(&h.units)
+                                    .map(|(s, u)| format!(
+                                        "{s} {}",
+                                        crate::run::validate::clean_text(u, false)
+                                    ))
+                                    .collect::<Vec<_>>()
+                                    .join(", ")
+                            );
+                        }
                         if h.rate_hz != self.header.rate_hz || h.channels != self.header.channels {
                             crate::fail!(
                                 "'{}' restarted with a different stream ({} Hz, channels {}): start a new run",
                                 self.name,
                                 h.rate_hz,
-                                h.channels.join(",")
+                                crate::run::validate::clean_text(&h.channels.join(","), false)
                             );
                         }
                     }
