@@ -86,7 +86,7 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
     };
     let label = a.variant.as_ref().map(|v| validate::clean_text(v, false));
     let cli_note = validate::clean_text(&a.note, true);
-    let (analysis, wav, mut variant) = if is_json {
+    let (mut analysis, wav, mut variant) = if is_json {
         let (analysis, wav, saved) = reanalyse(&a.input)?;
         check_outputs(&out, &[&a.input, &wav])?;
         (analysis, wav, saved)
@@ -124,7 +124,13 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
     if a.mass.is_some() {
         variant.mass_g = a.mass;
     }
-    finish(&analysis, variant, &out, &wav, a.hits, a.isolation)
+    if let Some(band) = a.isolation {
+        if analysis.roles().base.is_none() {
+            crate::fail!("--isolation needs a base channel (give --base-channel)");
+        }
+        analysis.set_isolation_band(Some(band));
+    }
+    finish(&analysis, variant, &out, &wav, a.hits)
 }
 
 /// The JSON and the CSV beside it must not replace an input, a file of another kind or
@@ -187,32 +193,6 @@ fn parse_freq_or_band(s: &str) -> std::result::Result<(f64, f64), String> {
 }
 
 /// Measured and modelled transmissibility at a frequency or over a band.
-fn isolation(analysis: &Analysis, band: (f64, f64)) -> Result<crate::run::Isolation> {
-    use crate::modes::softmount::{isolation_band_db, isolation_db};
-    let spectra = analysis.spectra();
-    let Some(curve) = spectra.curve(crate::spectra::Basis::Transmissibility) else {
-        crate::fail!("--isolation needs a base channel (give --base-channel)");
-    };
-    let point = band.0 == band.1;
-    let measured = if point {
-        isolation_db(&spectra.freqs, &curve, band.0)
-    } else {
-        isolation_band_db(&spectra.freqs, &curve, band)
-    };
-    let model = analysis.mount(&spectra).map(|m| {
-        if point {
-            m.model_db(band.0)
-        } else {
-            m.model_band_db(band)
-        }
-    });
-    Ok(crate::run::Isolation {
-        band_hz: band,
-        measured_db: measured,
-        model_db: model,
-    })
-}
-
 /// Re-run a saved run: same recording, same settings, same operator verdicts. The run
 /// file is checked like command-line settings, its recording must lie in its folder and
 /// match it (channels, rate, length), and the recording's own calibration and full scale
@@ -281,7 +261,6 @@ fn finish(
     out: &Path,
     wav: &Path,
     show_hits: bool,
-    isolation_band: Option<(f64, f64)>,
 ) -> Result<()> {
     let fs = analysis.info().sample_rate;
     let hits = analysis.hits();
@@ -296,13 +275,12 @@ fn finish(
     } else {
         "counts"
     };
-    let iso = isolation_band.map(|b| isolation(analysis, b)).transpose()?;
     let note = crate::run::RecordingNote {
         wav,
         encoding,
         gaps: &[],
     };
-    let mut run = write_run_files(analysis, variant, out, Some(note))?;
+    let run = write_run_files(analysis, variant, out, Some(note))?;
     if run
         .recording
         .as_ref()
@@ -321,7 +299,7 @@ fn finish(
             m.isolation_onset_hz()
         );
     }
-    if let Some(i) = iso {
+    if let Some(i) = &run.isolation {
         let db = |v: Option<f64>| v.map_or("-".to_string(), |v| format!("{v:+.1} dB"));
         println!(
             "transmissibility at {:.0}-{:.0} Hz: measured {}, mount model {}",
@@ -330,8 +308,6 @@ fn finish(
             db(i.measured_db),
             db(i.model_db)
         );
-        run.isolation = Some(i);
-        run.save(out)?;
     }
     if show_hits {
         print!("{}", report::hit_lines(hits, fs));

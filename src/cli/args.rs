@@ -195,6 +195,7 @@ impl AnalysisArgs {
             modes,
             estimator: self.estimator,
             basis,
+            isolation_band: None,
         })
     }
 }

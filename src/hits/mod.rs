@@ -510,8 +510,16 @@ impl HitDetector {
                                 let mut quiet = std::mem::take(&mut self.idle);
                                 let mean = quiet.iter().sum::<f64>() / quiet.len() as f64;
                                 quiet.iter_mut().for_each(|v| *v -= mean);
-                                self.idle_done.push(quiet);
-                                self.idle_taken += 1;
+                                // Still ringing from the last tap (a lightly damped mode
+                                // outlasts record and dead time): not a background. A
+                                // background is steady: its first quarter holds no more
+                                // than twice the energy of its last (3 dB).
+                                let q = quiet.len() / 4;
+                                let energy = |x: &[f64]| x.iter().map(|v| v * v).sum::<f64>();
+                                if energy(&quiet[..q]) <= 2.0 * energy(&quiet[quiet.len() - q..]) {
+                                    self.idle_done.push(quiet);
+                                    self.idle_taken += 1;
+                                }
                             }
                         }
                         self.seen += 1;

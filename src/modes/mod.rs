@@ -330,11 +330,18 @@ pub fn search_modes(
         };
         // Peaks where the output is mostly noise (coherence under the chance level for
         // this many averages) are noise, not modes.
+        // A weak peak (under the prominence asked of curves without coherence) needs a
+        // coherence that vouches for it, not only one above chance.
+        let needed = if p.prominence_db < cfg.min_prominence_db {
+            LOW_COHERENCE.max(noise_coherence(cfg.averages))
+        } else {
+            noise_coherence(cfg.averages)
+        };
         if coherent
             && curve
                 .coherence
                 .as_ref()
-                .is_some_and(|c| c[p.index] < noise_coherence(cfg.averages))
+                .is_some_and(|c| c[p.index] < needed)
         {
             out.incoherent_peaks += 1;
             continue;
@@ -504,7 +511,9 @@ pub fn search_modes(
         // Without a coherence and without a half-power band or fit nothing vouches for a
         // peak's width: it is not confirmed as a mode. And no built-up frame or arm has
         // a Q over 1000 (damping under MIN_DAMPING).
-        let unconfirmed = !coherent && m.half_power.is_none() && m.fit.is_none();
+        // A weak peak (allowed on coherent curves) must show its own half-power band.
+        let weak = m.prominence_db < cfg.min_prominence_db && m.half_power.is_none();
+        let unconfirmed = weak || (!coherent && m.half_power.is_none() && m.fit.is_none());
         let too_sharp = m.damping_ratio.is_some_and(|z| z < MIN_DAMPING);
         if unconfirmed
             || too_sharp

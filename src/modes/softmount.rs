@@ -234,6 +234,16 @@ pub fn fit_mount(
     })
 }
 
+/// Transmissibility in dB at a frequency or over a band (negative = isolation).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Isolation {
+    pub band_hz: (f64, f64),
+    /// Measured: |T| at the frequency, or 10 log10(mean |T|^2) over the band.
+    pub measured_db: Option<f64>,
+    /// The fitted mount model over the same band.
+    pub model_db: Option<f64>,
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

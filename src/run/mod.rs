@@ -9,10 +9,11 @@ pub mod validate;
 
 use crate::error::{Context, Error, Result};
 use crate::hits::{CheckConfig, TriggerConfig};
-use crate::modes::{LeftOut, Mode, ModeConfig, ModeSearch};
+use crate::modes::{LeftOut, Mode, ModeConfig};
+use crate::pipeline::AnalysisResult;
 use crate::pipeline::{Analysis, HitSummary};
 use crate::signal::{ChannelInfo, Roles};
-use crate::spectra::{Basis, Curve, Estimator, Spectra, WindowConfig};
+use crate::spectra::{Basis, Curve, Estimator, WindowConfig};
 pub use safe_path::FileKind;
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
@@ -117,46 +118,17 @@ pub struct RunFile {
     pub disarmed: Vec<(u64, u64)>,
 }
 
-/// Transmissibility in dB at a frequency or over a band (negative = isolation).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct Isolation {
-    pub band_hz: (f64, f64),
-    /// Measured: |T| at the frequency, or 10 log10(mean |T|^2) over the band.
-    pub measured_db: Option<f64>,
-    /// The fitted mount model over the same band.
-    pub model_db: Option<f64>,
-}
+pub use crate::modes::softmount::Isolation;
 
 impl RunFile {
     /// Describe the current state of an analysis.
-    pub fn from_analysis(
-        a: &Analysis,
-        spectra: &Spectra,
-        found: &ModeSearch,
-        variant: Variant,
-    ) -> Self {
-        let modes = &found.modes;
+    pub fn from_analysis(a: &Analysis, result: &AnalysisResult, variant: Variant) -> Self {
+        let spectra = &result.spectra;
+        let found = &result.search;
         let info = a.info();
         let cfg = a.config();
         let d = a.detector();
         let fft_len = (spectra.freqs.len() - 1) * 2;
-        let mut notes = found.notes.clone();
-        if modes
-            .iter()
-            .any(|m| m.flags.contains(&crate::modes::Flag::FewLines))
-        {
-            notes.push(format!(
-                "some half-power bands span fewer than {} spectral lines of {:.3} Hz: their damping is resolution-limited; lengthen the record",
-                crate::modes::MIN_LINES,
-                spectra.resolution_hz
-            ));
-        }
-        if let Some(tau) = spectra.tau_s {
-            notes.push(format!(
-                "an exponential window (tau {:.4} s) added damping; the damping ratios have it removed",
-                tau
-            ));
-        }
         RunFile {
             schema_version: SCHEMA_VERSION,
             tool: "tapmodes".into(),
@@ -180,7 +152,7 @@ impl RunFile {
                     zero_pad: cfg.spectra.pad,
                 },
                 estimator: cfg.estimator,
-                basis: a.basis(),
+                basis: result.basis,
                 band_hz: found.band_hz,
                 mode_search: cfg.modes.clone(),
             },
@@ -188,15 +160,11 @@ impl RunFile {
             hits_total: a.hits().len(),
             hits_accepted: a.accepted(),
             hits: a.hits().to_vec(),
-            modes: modes.to_vec(),
+            modes: found.modes.clone(),
             frf_csv: None,
-            mount: if spectra.hits > 0 {
-                a.mount(spectra)
-            } else {
-                None
-            },
-            isolation: None,
-            notes,
+            mount: result.mount.clone(),
+            isolation: result.isolation.clone(),
+            notes: result.notes.clone(),
             left_out: found.left_out.clone(),
             incoherent_peaks: found.incoherent_peaks,
             disarmed: a.disarmed().to_vec(),
@@ -330,6 +298,7 @@ impl RunFile {
             modes: s.mode_search.clone(),
             estimator: s.estimator,
             basis: Some(s.basis),
+            isolation_band: self.isolation.as_ref().map(|i| i.band_hz),
         }
     }
 
@@ -463,9 +432,8 @@ pub fn write_run_files(
     json_path: &Path,
     recording: Option<RecordingNote<'_>>,
 ) -> Result<RunFile> {
-    let spectra = analysis.spectra();
-    let found = analysis.search(&spectra);
-    let mut run = RunFile::from_analysis(analysis, &spectra, &found, variant);
+    let result = analysis.result();
+    let mut run = RunFile::from_analysis(analysis, &result, variant);
     if let Some(r) = recording {
         run.recording = Some(RecordingRef {
             wav: relative_to(json_path, r.wav),
@@ -474,12 +442,9 @@ pub fn write_run_files(
             gaps: r.gaps.to_vec(),
         });
     }
-    if let Some(curve) = (spectra.hits > 0)
-        .then(|| spectra.curve(analysis.basis()))
-        .flatten()
-    {
+    if let Some(curve) = &result.curve {
         let csv_path = json_path.with_extension("csv");
-        write_curve_csv(&csv_path, &spectra.freqs, &curve, run.setup.band_hz)?;
+        write_curve_csv(&csv_path, &result.spectra.freqs, curve, run.setup.band_hz)?;
         run.frf_csv = Some(relative_to(json_path, &csv_path));
     }
     run.save(json_path)?;

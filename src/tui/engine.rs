@@ -610,25 +610,23 @@ impl Engine {
     pub fn snapshot(&mut self) -> AnalysisSnap {
         self.version += 1;
         let a = &self.analysis;
-        let spectra = a.spectra();
-        let found = a.search(&spectra);
-        let modes = found.modes.clone();
-        let basis = a.basis();
-        let curve = (spectra.hits > 0)
-            .then(|| spectra.curve(basis))
-            .flatten()
-            .map(|c| CurveSnap {
-                basis,
-                db: c
-                    .magnitude
-                    .iter()
-                    .map(|m| 20.0 * m.max(1e-300).log10())
-                    .collect(),
-                magnitude: c.magnitude,
-                coherence: c.coherence,
-                unit: c.unit,
-                freqs: spectra.freqs.clone(),
-            });
+        // The pipeline's one result: the autosave that follows renders the same value.
+        let result = a.result();
+        let spectra = &result.spectra;
+        let modes = result.modes().to_vec();
+        let basis = result.basis;
+        let curve = result.curve.clone().map(|c| CurveSnap {
+            basis,
+            db: c
+                .magnitude
+                .iter()
+                .map(|m| 20.0 * m.max(1e-300).log10())
+                .collect(),
+            magnitude: c.magnitude,
+            coherence: c.coherence,
+            unit: c.unit,
+            freqs: spectra.freqs.clone(),
+        });
         let fs = self.setup.info.sample_rate;
         let roles = a.roles();
         let info = a.info();
@@ -657,8 +655,7 @@ impl Engine {
         });
         let run = RunFile::from_analysis(
             a,
-            &spectra,
-            &found,
+            &result,
             Variant {
                 label: self.label.clone(),
                 note: String::new(),

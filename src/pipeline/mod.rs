@@ -2,7 +2,10 @@
 
 use crate::error::Result;
 use crate::hits::{CheckConfig, Hit, HitDetector, TriggerConfig, TriggerLevel, Verdict};
-use crate::modes::{Mode, ModeConfig, ModeSearch, SearchContext, search_modes};
+pub mod result;
+
+use crate::modes::ModeConfig;
+pub use result::AnalysisResult;
 
 /// How far the force spectrum may fall below its low-frequency level before the search
 /// band ends there (dB); see `Analysis::band`.
@@ -44,6 +47,10 @@ pub struct AnalysisConfig {
     pub estimator: Estimator,
     /// `None`: FRF when there is a force channel, else the response spectrum.
     pub basis: Option<Basis>,
+    /// Report the mount's isolation (transmissibility in dB) over this band, Hz (a single
+    /// frequency when both ends are equal).
+    #[serde(default)]
+    pub isolation_band: Option<(f64, f64)>,
 }
 
 /// What is kept of each hit for the run file and the hit list.
@@ -97,6 +104,8 @@ pub struct Analysis {
     /// Stream ranges `[start, end)` in samples not searched for taps (the operator had
     /// disarmed the trigger); stored in the run file and honoured on re-analysis.
     disarmed: Vec<(u64, u64)>,
+    /// The result, once computed, until hits, verdicts or settings change.
+    cache: std::sync::Mutex<Option<std::sync::Arc<AnalysisResult>>>,
 }
 
 impl Analysis {
@@ -176,6 +185,7 @@ impl Analysis {
             retain,
             last: None,
             disarmed: Vec::new(),
+            cache: std::sync::Mutex::new(None),
         })
     }
 
@@ -249,6 +259,7 @@ impl Analysis {
 
     /// Disarmed ranges to honour (re-analysis of a run).
     pub fn set_disarmed(&mut self, ranges: Vec<(u64, u64)>) {
+        self.invalidate();
         self.disarmed = ranges;
     }
 
@@ -261,6 +272,7 @@ impl Analysis {
         self.detector.push(block, &mut found);
         for quiet in self.detector.take_idle() {
             self.averager.add_background(&quiet);
+            self.invalidate();
         }
         self.take_hits(found)
     }
@@ -275,6 +287,9 @@ impl Analysis {
 
     fn take_hits(&mut self, found: Vec<Hit>) -> usize {
         let n = found.len();
+        if n > 0 {
+            self.invalidate();
+        }
         for hit in found {
             if hit.verdict.is_accepted() {
                 self.averager.add(&hit.record);
@@ -297,6 +312,12 @@ impl Analysis {
     pub fn set_trigger_level(&mut self, level: TriggerLevel) {
         self.cfg.trigger.level = level;
         self.detector.set_level(level);
+    }
+
+    /// Report the mount's isolation over a band from now on (see `AnalysisConfig`).
+    pub fn set_isolation_band(&mut self, band: Option<(f64, f64)>) {
+        self.invalidate();
+        self.cfg.isolation_band = band;
     }
 
     /// Operator decision on hit `index` (0-based): accept or drop, then re-average.
@@ -356,9 +377,11 @@ impl Analysis {
         }
         avg.take_background(&mut self.averager);
         self.averager = avg;
+        self.invalidate();
     }
 
     pub fn set_estimator(&mut self, e: Estimator) {
+        self.invalidate();
         self.cfg.estimator = e;
         if let Some(Basis::Frf(_)) = self.cfg.basis {
             self.cfg.basis = Some(Basis::Frf(e));
@@ -366,6 +389,7 @@ impl Analysis {
     }
 
     pub fn set_basis(&mut self, b: Option<Basis>) {
+        self.invalidate();
         self.cfg.basis = b;
     }
 
@@ -398,139 +422,6 @@ impl Analysis {
             .filter(|(h, _)| h.verdict.is_accepted())
             .filter_map(|(_, r)| r.as_deref())
             .collect()
-    }
-
-    /// Modes on the current basis (see `search`).
-    pub fn modes(&self, spectra: &Spectra) -> Vec<Mode> {
-        self.search(spectra).modes
-    }
-
-    /// The mode search on the current basis (empty before the first accepted hit): modes
-    /// with their hit-to-hit uncertainty (ring-down damping for response-only runs), the
-    /// peaks set aside, and notes on what is doubtful.
-    pub fn search(&self, spectra: &Spectra) -> ModeSearch {
-        let nothing = ModeSearch {
-            band_hz: self.cfg.modes.band_hz,
-            ..ModeSearch::default()
-        };
-        if spectra.hits == 0 {
-            return nothing;
-        }
-        let basis = self.basis();
-        let Some(curve) = spectra.curve(basis) else {
-            return nothing;
-        };
-        let mut notes = Vec::new();
-        let cfg = crate::modes::ModeConfig {
-            averages: spectra.hits,
-            band_hz: self.band(spectra, &mut notes),
-            ..self.cfg.modes.clone()
-        };
-        let ctx = SearchContext {
-            background: (spectra.background_records > 0)
-                .then(|| (&spectra.background_esd[..], &spectra.response_esd[..])),
-        };
-        if spectra.background_records == 0 {
-            notes.push(
-                "no quiet stretch of a record's length was seen before or between the taps, so peaks could not be checked against the response without taps (hum, pickup): leave a few quiet seconds before the first tap".into(),
-            );
-        }
-        if spectra.hits == 1 {
-            notes.push(
-                "one accepted hit: no coherence and no hit-to-hit spread can be estimated, so the modes are unconfirmed; tap a few more times".into(),
-            );
-        }
-        let mut found = search_modes(
-            &spectra.freqs,
-            &curve,
-            spectra.resolution_hz,
-            spectra.tau_s,
-            &cfg,
-            &ctx,
-        );
-        notes.append(&mut found.notes);
-        found.notes = notes;
-        let modes = &mut found.modes;
-        let records = self.accepted_records();
-        if records.len() >= 2 {
-            let d = &self.detector;
-            let curves = crate::modes::uncertainty::hit_curves(
-                &records,
-                self.roles,
-                d.record_len(),
-                d.pretrigger_len(),
-                self.info.sample_rate,
-                &self.cfg.spectra,
-                basis,
-            );
-            crate::modes::uncertainty::attach(
-                modes,
-                &spectra.freqs,
-                &curves,
-                spectra.resolution_hz,
-                spectra.tau_s,
-            );
-        }
-        if basis == Basis::Autospectrum && !records.is_empty() {
-            let responses: Vec<&[f64]> = records
-                .iter()
-                .map(|r| r[self.roles.response].as_slice())
-                .collect();
-            crate::modes::ringdown::attach_ringdown(
-                modes,
-                &responses,
-                self.info.sample_rate,
-                &crate::modes::ringdown::RingdownConfig::default(),
-            );
-        }
-        found
-    }
-
-    /// The band the modes are searched in. A given band is used as is; without an upper
-    /// edge, the search stops below the anti-alias limit (0.4 fs) and, with a force
-    /// channel, where the hammer's force spectrum has fallen 20 dB below its level at the
-    /// bottom of the band: above that the tap puts little energy in and the FRF is the
-    /// ratio of two noises (the usable band of an impact is commonly taken to end 10 to
-    /// 20 dB down; common practice, no source).
-    pub fn band(&self, spectra: &Spectra, notes: &mut Vec<String>) -> (f64, f64) {
-        let (lo, hi) = self.cfg.modes.band_hz;
-        if !self.cfg.modes.band_from_data || !matches!(self.basis(), Basis::Frf(_)) {
-            return (lo, hi);
-        }
-        let Some((gff, _, _)) = spectra.force_response.as_ref() else {
-            return (lo, hi);
-        };
-        let f = &spectra.freqs;
-        let start = f.partition_point(|&x| x < lo.max(f.get(1).copied().unwrap_or(0.0)));
-        let stop = f
-            .partition_point(|&x| x < (2.0 * lo).max(lo + 10.0))
-            .max(start + 1);
-        let mut base: Vec<f64> = gff[start..stop.min(gff.len())].to_vec();
-        if base.is_empty() {
-            return (lo, hi);
-        }
-        base.sort_by(f64::total_cmp);
-        let reference = base[base.len() / 2];
-        let limit = reference * 10f64.powf(-FORCE_BAND_DB / 10.0);
-        let cut = (start..gff.len())
-            .find(|&k| gff[k] < limit)
-            .map(|k| f[k])
-            .filter(|&c| c < hi && c > lo);
-        match cut {
-            Some(c) => {
-                notes.push(format!(
-                    "modes searched up to {c:.0} Hz: there the hammer's force spectrum is {FORCE_BAND_DB:.0} dB below its level at the bottom of the band, so the tap drives little above it (a harder tip reaches higher; --band overrides)"
-                ));
-                (lo, c)
-            }
-            None => (lo, hi),
-        }
-    }
-
-    /// The soft mount read from the transmissibility, when there is a base channel.
-    pub fn mount(&self, spectra: &Spectra) -> Option<crate::modes::softmount::MountFit> {
-        let curve = spectra.curve(Basis::Transmissibility)?;
-        crate::modes::softmount::fit_mount(&spectra.freqs, &curve, None, spectra.tau_s)
     }
 }
 
