@@ -27,6 +27,36 @@ impl Role {
     }
 }
 
+/// What a response sensor measures: it decides how a spectrum is weighted before modes
+/// are read from it (peaks are read on mobility, velocity per force, where an SDOF's
+/// half-power relation is exact; see `modes::ModeConfig`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, clap::ValueEnum)]
+#[serde(rename_all = "snake_case")]
+pub enum SensorKind {
+    /// Accelerometer (MEMS or piezo-electric): divided by frequency.
+    Accelerometer,
+    /// Velocity pickup or laser vibrometer: read as is.
+    Velocity,
+    /// Displacement probe: multiplied by frequency.
+    Displacement,
+    /// Piezo contact disc (strain- and velocity-like, AC-coupled): read as is; the
+    /// parametric fit of a response spectrum models the weighting locally.
+    Piezo,
+    /// Microphone near the part (pressure): read as is.
+    Microphone,
+}
+
+impl SensorKind {
+    /// Power of frequency the magnitude is multiplied by to read it on mobility.
+    pub fn mobility_power(self) -> i32 {
+        match self {
+            SensorKind::Accelerometer => -1,
+            SensorKind::Displacement => 1,
+            SensorKind::Velocity | SensorKind::Piezo | SensorKind::Microphone => 0,
+        }
+    }
+}
+
 /// One channel of a stream. Samples reaching the pipeline are already in `unit`
 /// (raw value x `scale`); `full_scale` is the clipping level in the same unit.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

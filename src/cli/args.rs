@@ -106,6 +106,11 @@ pub struct AnalysisArgs {
     /// more averages (the coherence vouches for the peak), else 6].
     #[arg(long, value_name = "DB")]
     pub min_prominence_db: Option<f64>,
+    /// What the response sensor measures; decides how spectra are weighted before modes are
+    /// read (accelerometer: divided by frequency; velocity, piezo, microphone: as is;
+    /// displacement: multiplied by frequency) [default: accelerometer].
+    #[arg(long, value_enum, value_name = "KIND")]
+    pub response_sensor: Option<crate::signal::SensorKind>,
     /// Most modes listed; peaks beyond it are named in the notes [default: 12].
     #[arg(long, value_name = "N")]
     pub max_modes: Option<usize>,
@@ -161,6 +166,7 @@ impl AnalysisArgs {
         if let Some(b) = self.band {
             modes.band_hz = b;
         }
+        modes.response_sensor = self.response_sensor;
         if let Some(n) = self.max_modes {
             if n == 0 {
                 crate::fail!("--max-modes must be at least 1");

@@ -2,12 +2,16 @@
 
 pub mod fit;
 pub mod halfpower;
+pub mod leftout;
 pub mod peaks;
+pub mod powerfit;
 pub mod ringdown;
 pub mod softmount;
 pub mod uncertainty;
 
 use crate::spectra::{Curve, remove_window_damping};
+use leftout::describe_left_out;
+pub use leftout::{LeftOut, LeftOutReason, ModeSearch};
 use serde::{Deserialize, Serialize};
 use std::f64::consts::PI;
 
@@ -109,6 +113,9 @@ pub struct Mode {
     /// given.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub uncertainty: Option<uncertainty::Uncertainty>,
+    /// The parametric fit on a response spectrum (see `powerfit`), apparent values.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub spectrum_fit: Option<powerfit::PowerFit>,
     /// Ring-down damping from the response alone (see `ringdown`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub ringdown: Option<ringdown::RingdownSummary>,
@@ -119,54 +126,6 @@ pub struct Mode {
 pub struct Estimate {
     pub frequency_hz: f64,
     pub damping_ratio: Option<f64>,
-}
-
-/// Why a peak of the curve is not listed as a mode.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
-pub enum LeftOutReason {
-    /// More candidates passed every test than `max_modes`: the least prominent are left out.
-    Limit,
-    /// A narrow line already present before the taps at the same level (mains hum and its
-    /// harmonics, electrical pickup, a fan).
-    StationaryLine,
-    /// The taps do not lift the response here above what it holds without a tap.
-    Background,
-    /// Narrower than the windows allow a structural peak to be: noise or leakage.
-    Spike,
-}
-
-impl LeftOutReason {
-    pub fn label(self) -> &'static str {
-        match self {
-            LeftOutReason::Limit => "over the mode limit",
-            LeftOutReason::StationaryLine => "stationary line (there before the taps)",
-            LeftOutReason::Background => "not above the background without taps",
-            LeftOutReason::Spike => "too narrow for a mode, or width not measurable",
-        }
-    }
-}
-
-/// A peak that is not listed as a mode, and why.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct LeftOut {
-    pub frequency_hz: f64,
-    pub prominence_db: f64,
-    pub reason: LeftOutReason,
-}
-
-/// What the mode search found and what it set aside.
-#[derive(Debug, Clone, PartialEq, Default)]
-pub struct ModeSearch {
-    pub modes: Vec<Mode>,
-    /// Peaks set aside, each with its reason (peaks of noise below chance coherence are
-    /// only counted, in `incoherent_peaks`).
-    pub left_out: Vec<LeftOut>,
-    pub incoherent_peaks: usize,
-    /// The band searched, Hz.
-    pub band_hz: (f64, f64),
-    /// Sentences for the reader: what was dropped or is doubtful, and why.
-    pub notes: Vec<String>,
 }
 
 /// What the search knows besides the curve.
@@ -225,6 +184,10 @@ pub struct ModeConfig {
     /// memory), where the accelerance peak sits at fn / sqrt(1 - 2 z^2).
     #[serde(default = "yes")]
     pub acceleration_response: bool,
+    /// What the response sensor measures; when given it decides the weighting instead of
+    /// `acceleration_response` (see `SensorKind::mobility_power`). Stored in the run file.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub response_sensor: Option<crate::signal::SensorKind>,
 }
 
 fn yes() -> bool {
@@ -250,6 +213,7 @@ impl Default for ModeConfig {
             averages: 0,
             max_modes: 12,
             band_from_data: false,
+            response_sensor: None,
             acceleration_response: true,
         }
     }
@@ -290,14 +254,22 @@ pub fn search_modes(
         band_hz: cfg.band_hz,
         ..ModeSearch::default()
     };
-    let mobility =
-        cfg.acceleration_response && curve.basis != crate::spectra::Basis::Transmissibility;
+    let power = match (curve.basis, cfg.response_sensor) {
+        (crate::spectra::Basis::Transmissibility, _) => 0,
+        (_, Some(kind)) => kind.mobility_power(),
+        (_, None) if cfg.acceleration_response => -1,
+        _ => 0,
+    };
+    // After the weighting the curve is read as a mobility (velocity per force), where the
+    // half-power relation is exact; a transmissibility is read as it is.
+    let mobility = curve.basis != crate::spectra::Basis::Transmissibility
+        && (cfg.response_sensor.is_some() || cfg.acceleration_response);
     let db: Vec<f64> = curve
         .magnitude
         .iter()
         .zip(freqs)
         .map(|(m, f)| {
-            let m = if mobility { m / f.max(1e-9) } else { *m };
+            let m = m * f.max(1e-9).powi(power);
             20.0 * m.max(1e-300).log10()
         })
         .collect();
@@ -472,6 +444,7 @@ pub fn search_modes(
                     damping_ratio: zeta,
                 }),
                 fit: None,
+                spectrum_fit: None,
                 uncertainty: None,
                 ringdown: None,
             }
@@ -486,6 +459,11 @@ pub fn search_modes(
         &seeds,
         &fit::FitConfig::default(),
     );
+    let poor_fits = if curve.basis == crate::spectra::Basis::Autospectrum {
+        powerfit::fit_spectrum_modes(freqs, curve, resolution_hz, tau_s, &mut modes)
+    } else {
+        Vec::new()
+    };
     // The band fit may add a mode (a peak split in two): it passes the same tests. And a
     // mode whose own damping is under a tenth of the window's is as narrow as a steady sine
     // seen through the window: hum, pickup or noise, not a decaying structure (a real
@@ -542,53 +520,18 @@ pub fn search_modes(
     out.left_out
         .sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
     describe_left_out(&mut out, cfg);
+    let poor: Vec<String> = poor_fits
+        .iter()
+        .filter(|(f, _)| modes.iter().any(|m| m.frequency_hz == *f))
+        .map(|(f, r)| format!("{f:.1} Hz ({:.0} %)", 100.0 * r))
+        .collect();
+    if !poor.is_empty() {
+        out.notes.push(format!(
+            "the spectrum fit does not explain the peaks at {} (relative residual over {:.0} %): their half-power values are kept",
+            poor.join(", "),
+            100.0 * powerfit::MAX_RESIDUAL
+        ));
+    }
     out.modes = modes;
     out
-}
-
-/// Notes for the reader about what was set aside.
-fn describe_left_out(out: &mut ModeSearch, cfg: &ModeConfig) {
-    let list = |reason: LeftOutReason| -> Vec<String> {
-        out.left_out
-            .iter()
-            .filter(|l| l.reason == reason)
-            .map(|l| format!("{:.1}", l.frequency_hz))
-            .collect()
-    };
-    let limit = list(LeftOutReason::Limit);
-    if !limit.is_empty() {
-        out.notes.push(format!(
-            "{} peaks that passed every test were left out by the limit of {} modes (the least prominent): {} Hz; raise --max-modes or narrow --band to see them",
-            limit.len(),
-            cfg.max_modes,
-            limit.join(", ")
-        ));
-    }
-    let lines = list(LeftOutReason::StationaryLine);
-    if !lines.is_empty() {
-        out.notes.push(format!(
-            "peaks at {} Hz were already there before the taps at the same level (mains hum, pickup or a fan): not modes",
-            lines.join(", ")
-        ));
-    }
-    let bg = list(LeftOutReason::Background);
-    if !bg.is_empty() {
-        out.notes.push(format!(
-            "peaks at {} Hz are not lifted {OVER_BACKGROUND_DB:.0} dB over the response without taps: not modes",
-            bg.join(", ")
-        ));
-    }
-    if out.incoherent_peaks > 0 {
-        out.notes.push(format!(
-            "{} peaks with coherence below what noise reaches by chance after {} averages were set aside as noise",
-            out.incoherent_peaks, cfg.averages
-        ));
-    }
-    let spikes = list(LeftOutReason::Spike);
-    if !spikes.is_empty() {
-        out.notes.push(format!(
-            "{} peaks narrower than a mode can be (under the windows' own width, Q over 1000, or no measurable width without a coherence) were set aside as noise or leakage",
-            spikes.len()
-        ));
-    }
 }
