@@ -72,3 +72,35 @@ fn magnitude_only_fit_and_isolation() {
     let at_onset = isolation_db(&freqs, &c, fit.isolation_onset_hz()).expect("in range");
     assert!(at_onset.abs() < 0.02, "{at_onset}");
 }
+
+#[test]
+fn an_elastomer_mount_is_fitted_with_its_loss_factor() {
+    // Complex stiffness k (1 + j eta): T(r) = (1 + j eta) / (1 - r^2 + j eta) (Rao,
+    // *Mechanical Vibrations*, 5th ed., sec. 2.9, hysteretic damping; from memory). The
+    // viscous model cannot follow it above resonance (its T falls as 1/r there, the
+    // hysteretic one as 1/r^2), so the hysteretic model is kept, with eta recovered.
+    use tapmodes::modes::softmount::MountModel;
+    let (fn_hz, eta) = (97.0, 0.19);
+    let freqs: Vec<f64> = (0..2000).map(|k| k as f64 * 0.5).collect();
+    let t: Vec<Complex64> = freqs
+        .iter()
+        .map(|&f| {
+            let r = f / fn_hz;
+            Complex64::new(1.0, eta) / Complex64::new(1.0 - r * r, eta)
+        })
+        .collect();
+    let fit = fit_mount(&freqs, &curve(&t, true), None, None).expect("fit");
+    assert_eq!(fit.model, MountModel::Hysteretic, "{fit:?}");
+    assert!(
+        (fit.natural_frequency_hz - fn_hz).abs() < 1e-4 * fn_hz,
+        "{fit:?}"
+    );
+    assert!(
+        (fit.loss_factor.unwrap() - eta).abs() < 1e-3 * eta,
+        "{fit:?}"
+    );
+    assert!(
+        fit.other_model_error.unwrap() > 10.0 * fit.error.max(1e-9),
+        "{fit:?}"
+    );
+}

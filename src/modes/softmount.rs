@@ -35,6 +35,38 @@ pub fn transmissibility(r: f64, zeta: f64) -> Complex64 {
     Complex64::new(1.0, 2.0 * zeta * r) / Complex64::new(1.0 - r * r, 2.0 * zeta * r)
 }
 
+/// How the mount's damping is modelled.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum MountModel {
+    /// A dashpot: force proportional to velocity (`T` above).
+    #[default]
+    Viscous,
+    /// A complex stiffness `k (1 + j eta)` with a loss factor constant over frequency, the
+    /// usual first model of an elastomer (Rao, *Mechanical Vibrations*, 5th ed., sec. 2.9
+    /// "hysteretic damping"; from memory): `T(r) = (1 + j eta) / (1 - r^2 + j eta)`. Its
+    /// `damping_ratio` is the equivalent `eta / 2` at resonance.
+    Hysteretic,
+}
+
+/// Base-excitation transmissibility of a mount model at Laplace variable `s` (rad/s);
+/// `zeta` is the damping ratio (viscous) or half the loss factor (hysteretic).
+pub fn model_s(model: MountModel, s: Complex64, fn_hz: f64, zeta: f64) -> Complex64 {
+    match model {
+        MountModel::Viscous => transmissibility_s(s, fn_hz, zeta),
+        MountModel::Hysteretic => {
+            let wn = 2.0 * PI * fn_hz;
+            let k = Complex64::new(wn * wn, 2.0 * zeta * wn * wn);
+            k / (s * s + k)
+        }
+    }
+}
+
+/// A mount fit leaving more than this share of the transmissibility unexplained is
+/// doubtful (two mount modes, a frequency-dependent elastomer, a poor base signal):
+/// common practice, no source.
+pub const DOUBTFUL_ERROR: f64 = 0.2;
+
 /// The fitted mount.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct MountFit {
@@ -48,6 +80,15 @@ pub struct MountFit {
     pub error: f64,
     /// True when the curve had no phase and only the magnitude was fitted.
     pub magnitude_only: bool,
+    /// The damping model that explained the curve better (both are tried).
+    #[serde(default)]
+    pub model: MountModel,
+    /// Loss factor of the hysteretic model (when it is the one kept).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub loss_factor: Option<f64>,
+    /// Normalised residual of the other model, for comparison.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub other_model_error: Option<f64>,
 }
 
 impl MountFit {
@@ -58,7 +99,8 @@ impl MountFit {
 
     /// The model's `|T|` in dB at `f_hz` (no window, unit gain).
     pub fn model_db(&self, f_hz: f64) -> f64 {
-        let t = transmissibility(f_hz / self.natural_frequency_hz, self.damping_ratio);
+        let s = Complex64::new(0.0, 2.0 * PI * f_hz);
+        let t = model_s(self.model, s, self.natural_frequency_hz, self.damping_ratio);
         20.0 * t.norm().log10()
     }
 
@@ -68,7 +110,8 @@ impl MountFit {
         let mean = (0..n)
             .map(|i| {
                 let f = band_hz.0 + (band_hz.1 - band_hz.0) * (i as f64 + 0.5) / n as f64;
-                transmissibility(f / self.natural_frequency_hz, self.damping_ratio).norm_sqr()
+                let s = Complex64::new(0.0, 2.0 * PI * f);
+                model_s(self.model, s, self.natural_frequency_hz, self.damping_ratio).norm_sqr()
             })
             .sum::<f64>()
             / n as f64;
@@ -111,6 +154,31 @@ pub fn fit_mount(
     band_hz: Option<(f64, f64)>,
     tau_s: Option<f64>,
 ) -> Option<MountFit> {
+    let viscous = fit_model(MountModel::Viscous, freqs, curve, band_hz, tau_s);
+    let hysteretic = fit_model(MountModel::Hysteretic, freqs, curve, band_hz, tau_s);
+    match (viscous, hysteretic) {
+        (Some(v), Some(h)) => {
+            // The hysteretic model is kept only when it explains clearly more (a tenth
+            // less residual): the viscous one is the familiar default.
+            let (mut keep, other) = if h.error < 0.9 * v.error {
+                (h, v)
+            } else {
+                (v, h)
+            };
+            keep.other_model_error = Some(other.error);
+            Some(keep)
+        }
+        (v, h) => v.or(h),
+    }
+}
+
+fn fit_model(
+    model: MountModel,
+    freqs: &[f64],
+    curve: &Curve,
+    band_hz: Option<(f64, f64)>,
+    tau_s: Option<f64>,
+) -> Option<MountFit> {
     let (ipk, _) = freqs
         .iter()
         .zip(&curve.magnitude)
@@ -142,7 +210,7 @@ pub fn fit_mount(
         let (fn_hz, zeta) = (p[0].exp(), p[1].exp());
         let model: Vec<Complex64> = s
             .iter()
-            .map(|&si| transmissibility_s(si, fn_hz, zeta))
+            .map(|&si| model_s(model, si, fn_hz, zeta))
             .collect();
         match &meas {
             Some(m) => {
@@ -231,6 +299,9 @@ pub fn fit_mount(
         lines: idx.len(),
         error: (r.norm_squared() / norm.max(f64::MIN_POSITIVE)).sqrt(),
         magnitude_only,
+        model,
+        loss_factor: (model == MountModel::Hysteretic).then(|| 2.0 * p[1].exp()),
+        other_model_error: None,
     })
 }
 

@@ -3,7 +3,7 @@
 //! pipeline calls into `spectra` or `modes` to assemble a result of its own.
 
 use super::{Analysis, FORCE_BAND_DB};
-use crate::modes::softmount::{Isolation, MountFit};
+use crate::modes::softmount::{DOUBTFUL_ERROR, Isolation, MountFit, MountModel};
 use crate::modes::{Flag, MIN_LINES, Mode, ModeSearch, SearchContext, search_modes};
 use crate::spectra::{Basis, Curve, Spectra};
 use std::sync::Arc;
@@ -75,6 +75,16 @@ impl Analysis {
         if let Some(tau) = spectra.tau_s {
             notes.push(format!(
                 "an exponential window (tau {tau:.4} s) added damping; the damping ratios have it removed"
+            ));
+        }
+        if let Some(m) = mount.as_ref().filter(|m| m.error > DOUBTFUL_ERROR) {
+            notes.push(format!(
+                "the mount model ({}) leaves {:.0} % of the transmissibility unexplained: two mount modes (bounce and pitch), an elastomer whose stiffness changes with frequency, or a poor base signal; treat the mount's frequency and damping as approximate",
+                match m.model {
+                    MountModel::Viscous => "viscous",
+                    MountModel::Hysteretic => "hysteretic",
+                },
+                100.0 * m.error
             ));
         }
         if self.cfg.isolation_band.is_some() && isolation.is_none() {

@@ -111,10 +111,9 @@ pub fn check_roles(roles: &Roles, n: usize, what: &str) -> Result<()> {
             roles.response
         )));
     }
-    if roles.force.is_some() && roles.force == roles.base {
+    if let Some(f) = roles.force.filter(|&f| Some(f) == roles.base) {
         return Err(Error::new(format!(
-            "{what} gives channel {} two roles (force and base)",
-            roles.response
+            "{what} gives channel {f} two roles (force and base); without a hammer sensor add --no-force, else name the force channel with --force-channel"
         )));
     }
     Ok(())
