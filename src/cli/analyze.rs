@@ -42,6 +42,8 @@ pub struct AnalyzeArgs {
     pub channels: ChannelArgs,
     #[command(flatten)]
     pub analysis: AnalysisArgs,
+    #[command(flatten)]
+    pub drive: super::drive_args::DriveArgs,
 }
 
 /// Open a WAV with the channel options applied (scales, units, names).
@@ -86,9 +88,11 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
     };
     let label = a.variant.as_ref().map(|v| validate::clean_text(v, false));
     let cli_note = validate::clean_text(&a.note, true);
+    let mut drive = a.drive.drive()?;
     let (analysis, wav, mut variant) = if is_json {
-        let (analysis, wav, saved) = reanalyse(&a.input)?;
+        let (analysis, wav, saved, saved_drive) = reanalyse(&a.input)?;
         check_outputs(&out, &[&a.input, &wav])?;
+        drive = drive.or(saved_drive);
         (analysis, wav, saved)
     } else {
         let choice = a.channels.role_choice();
@@ -112,6 +116,7 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
                 out.display()
             );
             variant = run.variant;
+            drive = drive.or(run.drive.map(|d| d.description));
         }
         if let Some(l) = label.clone() {
             variant.label = l;
@@ -124,7 +129,11 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
     if a.mass.is_some() {
         variant.mass_g = a.mass;
     }
-    finish(&analysis, variant, &out, &wav, a.hits, a.isolation)
+    if let Some(d) = &drive {
+        d.check()
+            .map_err(|e| e.context(format!("the drive stored in '{}'", out.display())))?;
+    }
+    finish(&analysis, variant, &out, &wav, a.hits, a.isolation, drive.as_ref())
 }
 
 /// The JSON and the CSV beside it must not replace an input, a file of another kind or
@@ -217,7 +226,7 @@ fn isolation(analysis: &Analysis, band: (f64, f64)) -> Result<crate::run::Isolat
 /// file is checked like command-line settings, its recording must lie in its folder and
 /// match it (channels, rate, length), and the recording's own calibration and full scale
 /// are taken from the run, so re-analysis reproduces the capture.
-fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
+fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
     let saved = RunFile::load(json)?;
     let shown = json.display();
     let wav = saved.wav_path(json).ok_or_else(|| {
@@ -272,7 +281,12 @@ fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
     analysis.set_disarmed(saved.disarmed.clone());
     let mut analysis = crate::pipeline::drain_into(&mut src, analysis)?;
     analysis.apply_verdicts(&saved.hits);
-    Ok((analysis, wav, saved.variant))
+    let drive = saved.drive.map(|d| d.description);
+    if let Some(d) = &drive {
+        d.check()
+            .map_err(|e| e.context(format!("the drive stored in '{shown}'")))?;
+    }
+    Ok((analysis, wav, saved.variant, drive))
 }
 
 fn finish(
@@ -282,6 +296,7 @@ fn finish(
     wav: &Path,
     show_hits: bool,
     isolation_band: Option<(f64, f64)>,
+    drive: Option<&crate::drive::Drive>,
 ) -> Result<()> {
     let fs = analysis.info().sample_rate;
     let hits = analysis.hits();
@@ -302,7 +317,7 @@ fn finish(
         encoding,
         gaps: &[],
     };
-    let mut run = write_run_files(analysis, variant, out, Some(note))?;
+    let mut run = write_run_files(analysis, variant, out, Some(note), drive)?;
     if run
         .recording
         .as_ref()
@@ -351,6 +366,9 @@ fn finish(
         run.setup.fft.resolution_hz
     );
     print!("{}", report::mode_table(&run.modes));
+    if let Some(d) = &run.drive {
+        print!("{}", crate::drive::report::summary(d, &run.modes));
+    }
     for n in &run.notes {
         println!("note: {n}");
     }

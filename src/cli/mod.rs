@@ -6,6 +6,7 @@ pub mod args;
 pub mod bench;
 pub mod capture;
 pub mod compare;
+pub mod drive_args;
 pub mod ports;
 pub mod report;
 pub mod simulate;
