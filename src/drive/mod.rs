@@ -321,7 +321,7 @@ impl Drive {
         let (lo, hi) = self.rpm_range();
         match (self.motor_kv, self.pack_volts(), self.throttle_pct) {
             (Some(kv), Some(v), Some(t)) => format!(
-                "{kv} rpm/V, {} cells x {} V = {v:.1} V, throttle {}-{} % -> {lo:.0}-{hi:.0} rpm, {} blades",
+                "KV {kv}, {} x {} V = {v:.1} V, throttle {}-{} % -> {lo:.0}-{hi:.0} rpm, {} blades",
                 self.cells.unwrap_or(0),
                 self.volts_per_cell(),
                 t.0,

@@ -72,6 +72,6 @@ pub fn summary(section: &DriveSection, modes: &[Mode]) -> String {
             s += &format!("  warning: {w}\n");
         }
     }
-    s += &format!("note: {}\n", section.basis);
+    s += "note: the bands are estimates from nameplate values; the verdict is guidance, not a\n      substitute for a careful first hover\n";
     s
 }
