@@ -185,11 +185,11 @@ pub fn render(b: &BandComparison) -> String {
         s += &format!("  {:<12} {:>7.1}-{:.1} Hz\n", x.name, x.hz.0, x.hz.1);
     }
     for v in &b.variants {
-        s += &format!("{}: modes against the bands (margin to the nearest edge)\n", v.label);
-        s += "  pair     f Hz before->after  verdict before->after  margin %   change\n";
+        s += &format!("{}: modes against the bands, before->after (margin to the nearest edge)\n", v.label);
+        s += " pair  f Hz            verdict         margin %      change\n";
         for ch in &v.changes {
             s += &format!(
-                "  {:>2}-{:<2} {:>7.1} -> {:<7.1} {:>6} -> {:<6} {:>+6.1} -> {:<+6.1} {:>+6.1} {}\n",
+                "{:>2}-{:<2}{:>7.1}->{:<7.1}{:>6}->{:<7}{:>+6.1}->{:<+6.1}{:>+6.1} {}\n",
                 ch.baseline_mode,
                 ch.variant_mode,
                 ch.baseline_hz,
