@@ -8,6 +8,7 @@
 
 pub mod app;
 pub mod bench;
+pub mod drive_view;
 pub mod engine;
 pub mod model;
 pub mod view;
