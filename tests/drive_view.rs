@@ -43,7 +43,8 @@ fn app(preset: &str, seconds: f64, dir: &std::path::Path, base: bool) -> App {
 
 fn screen(app: &App, w: u16, h: u16) -> Buffer {
     let mut t = Terminal::new(TestBackend::new(w, h)).unwrap();
-    t.draw(|f| tapmodes::tui::view::view(&app.model, f)).unwrap();
+    t.draw(|f| tapmodes::tui::view::view(&app.model, f))
+        .unwrap();
     t.backend().buffer().clone()
 }
 
@@ -62,9 +63,7 @@ fn text(b: &Buffer) -> String {
 fn first_columns(b: &Buffer) -> Vec<Option<u16>> {
     BAND_COLORS
         .iter()
-        .map(|c| {
-            (0..b.area.height).find_map(|y| (0..b.area.width).find(|&x| b[(x, y)].bg == *c))
-        })
+        .map(|c| (0..b.area.height).find_map(|y| (0..b.area.width).find(|&x| b[(x, y)].bg == *c)))
         .collect()
 }
 
@@ -83,10 +82,19 @@ fn bands_are_shaded_named_columns_at_both_sizes() {
             .filter(|&(x, y)| BAND_COLORS.contains(&b[(x, y)].bg))
             .count();
         assert!(shaded > 0, "{w}x{h}: no band shading\n{t}");
-        assert!(t.contains("rot"), "{w}x{h}: the rotation band is not named\n{t}");
-        assert!(t.contains("band"), "{w}x{h}: the mode table has no band column\n{t}");
+        assert!(
+            t.contains("rot"),
+            "{w}x{h}: the rotation band is not named\n{t}"
+        );
+        assert!(
+            t.contains("band"),
+            "{w}x{h}: the mode table has no band column\n{t}"
+        );
         // The first mode of the solid arm (about 148 Hz) lies 12 % below the rotation band.
-        assert!(t.contains("clear"), "{w}x{h}: no verdict in the mode table\n{t}");
+        assert!(
+            t.contains("clear"),
+            "{w}x{h}: no verdict in the mode table\n{t}"
+        );
     }
 }
 

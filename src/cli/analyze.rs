@@ -133,7 +133,15 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
         d.check()
             .map_err(|e| e.context(format!("the drive stored in '{}'", out.display())))?;
     }
-    finish(&analysis, variant, &out, &wav, a.hits, a.isolation, drive.as_ref())
+    finish(
+        &analysis,
+        variant,
+        &out,
+        &wav,
+        a.hits,
+        a.isolation,
+        drive.as_ref(),
+    )
 }
 
 /// The JSON and the CSV beside it must not replace an input, a file of another kind or

@@ -163,9 +163,18 @@ mod tests {
     #[test]
     fn bad_files_are_one_sentence_each() {
         let cases = [
-            ("motor_kv = 1300\ncells = 0\nthrottle = 35:100\nblades = 3", "cells must be"),
-            ("motor_kv = 1300\ncells = 6\nthrottle = 35:120\nblades = 3", "0-100 %"),
-            ("rpm = 9000:30000\nblades = 3\nspeed = 4", "unknown key 'speed'"),
+            (
+                "motor_kv = 1300\ncells = 0\nthrottle = 35:100\nblades = 3",
+                "cells must be",
+            ),
+            (
+                "motor_kv = 1300\ncells = 6\nthrottle = 35:120\nblades = 3",
+                "0-100 %",
+            ),
+            (
+                "rpm = 9000:30000\nblades = 3\nspeed = 4",
+                "unknown key 'speed'",
+            ),
             ("rpm = 9000:30000\nblades = 3\nblades = 2", "given twice"),
             ("rpm = 9000\nblades = 3", "not a range"),
             ("rpm = 9000:30000", "does not give 'blades'"),

@@ -101,7 +101,11 @@ pub fn from_parts(
     model_db: Option<f64>,
     coherence: &[f64],
 ) -> BandIsolation {
-    let finite: Vec<f64> = coherence.iter().copied().filter(|g| g.is_finite()).collect();
+    let finite: Vec<f64> = coherence
+        .iter()
+        .copied()
+        .filter(|g| g.is_finite())
+        .collect();
     let (mean, min, low) = if finite.is_empty() {
         (None, None, None)
     } else {

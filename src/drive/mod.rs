@@ -219,12 +219,14 @@ impl Drive {
                 "give the speed either as an rpm range or as motor KV, cells and throttle, not both"
             ),
             (Some(r), false) => check_range(r, 0.0, MAX_RPM, "the rpm range", "rpm"),
-            (None, false) => crate::fail!(
-                "the drive needs either an rpm range or motor KV, cells and throttle"
-            ),
+            (None, false) => {
+                crate::fail!("the drive needs either an rpm range or motor KV, cells and throttle")
+            }
             (None, true) => {
                 let Some(kv) = self.motor_kv else {
-                    crate::fail!("the drive needs the motor KV (rpm per volt) with cells and throttle");
+                    crate::fail!(
+                        "the drive needs the motor KV (rpm per volt) with cells and throttle"
+                    );
                 };
                 if !(kv.is_finite() && kv > 0.0 && kv <= MAX_KV) {
                     crate::fail!(
@@ -248,11 +250,8 @@ impl Drive {
                         "the drive needs the throttle range (hover to full, percent) with the motor KV"
                     );
                 };
-                let ok = t.0.is_finite()
-                    && t.1.is_finite()
-                    && t.0 > 0.0
-                    && t.0 <= t.1
-                    && t.1 <= 100.0;
+                let ok =
+                    t.0.is_finite() && t.1.is_finite() && t.0 > 0.0 && t.0 <= t.1 && t.1 <= 100.0;
                 if !ok {
                     crate::fail!(
                         "the throttle range {}:{} must lie within 0-100 % (LO above 0, LO at most HI)",

@@ -879,13 +879,13 @@ fn draw_modes(m: &Model, f: &mut Frame, area: Rect) {
                 cells.push(Cell::from(super::drive_view::band_cell(band)));
             }
             cells.push(Cell::from(Span::styled(
-                    flags,
-                    Style::default().fg(if md.flags.is_empty() {
-                        Color::Reset
-                    } else {
-                        Color::Red
-                    }),
-                )));
+                flags,
+                Style::default().fg(if md.flags.is_empty() {
+                    Color::Reset
+                } else {
+                    Color::Red
+                }),
+            )));
             Row::new(cells)
         })
         .collect();

@@ -185,7 +185,10 @@ pub fn render(b: &BandComparison) -> String {
         s += &format!("  {:<12} {:>7.1}-{:.1} Hz\n", x.name, x.hz.0, x.hz.1);
     }
     for v in &b.variants {
-        s += &format!("{}: modes against the bands, before->after (margin to the nearest edge)\n", v.label);
+        s += &format!(
+            "{}: modes against the bands, before->after (margin to the nearest edge)\n",
+            v.label
+        );
         s += " pair  f Hz            verdict         margin %      change\n";
         for ch in &v.changes {
             s += &format!(
