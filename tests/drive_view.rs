@@ -7,7 +7,6 @@ use ratatui::buffer::Buffer;
 use std::path::PathBuf;
 use tapmodes::drive::Drive;
 use tapmodes::signal::RoleChoice;
-use tapmodes::source::Source;
 use tapmodes::tui::drive_view::BAND_COLORS;
 use tapmodes::tui::{App, Launch};
 
