@@ -67,7 +67,7 @@ pub const KEYS: &[(&str, Action, &str)] = &[
     ("v", Action::View, "FRF/spectrum/transmissib."),
     ("i/o", Action::ZoomIn, "zoom frequency in / out"),
     ("0", Action::ZoomReset, "whole search band"),
-    ("g", Action::LogAxis, "log / linear frequency axis"),
+    ("g", Action::LogAxis, "log / linear freq. axis"),
     ("Left/Right", Action::CursorLeft, "move the cursor"),
     (",/.", Action::PanLeft, "pan the frequency axis"),
     ("m", Action::NextMode, "cursor to the next mode"),
@@ -85,7 +85,7 @@ pub const KEYS: &[(&str, Action, &str)] = &[
 pub const SAFETY: &[&str] = &[
     "Before tapping: propellers OFF, flight battery DISCONNECTED, craft SECURED on the bench.",
     "Tap gently; a hard hammer blow can crack carbon or loosen parts.",
-    "These numbers and the motor-band verdicts (estimates from nameplate values) are guidance: they do not replace the manufacturer's guidance, local rules or a careful first hover.",
+    "Numbers and band verdicts do not replace the manufacturer's guidance, local rules or a careful first hover.",
 ];
 
 /// Map a key press to an action (normal mode).
