@@ -4,6 +4,7 @@
 
 pub mod bench; // accuracy of the estimators against simulated truth
 pub mod cli; // command-line front end over the library
+pub mod drive; // the motors' excitation bands and each mode's verdict against them
 pub mod error; // errors as values: one sentence with context
 pub mod hits; // trigger, pre-trigger ring, per-hit verdicts
 pub mod modes; // peak picking, half-power damping, flags

@@ -48,6 +48,7 @@ fn from_plan(plan: BenchPlan, seconds: f64, dir: &std::path::Path, label: &str) 
         auto_tap_s: None,
         demo: true,
         compare_with: Vec::new(),
+        drive: None,
     };
     let mut app = App::headless(launch).unwrap();
     app.pump_seconds(seconds);

@@ -42,6 +42,8 @@ pub struct AnalyzeArgs {
     pub channels: ChannelArgs,
     #[command(flatten)]
     pub analysis: AnalysisArgs,
+    #[command(flatten)]
+    pub drive: super::drive_args::DriveArgs,
 }
 
 /// Open a WAV with the channel options applied (scales, units, names).
@@ -86,9 +88,11 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
     };
     let label = a.variant.as_ref().map(|v| validate::clean_text(v, false));
     let cli_note = validate::clean_text(&a.note, true);
+    let mut drive = a.drive.drive()?;
     let (mut analysis, wav, mut variant) = if is_json {
-        let (analysis, wav, saved) = reanalyse(&a.input)?;
+        let (analysis, wav, saved, saved_drive) = reanalyse(&a.input)?;
         check_outputs(&out, &[&a.input, &wav])?;
+        drive = drive.or(saved_drive);
         (analysis, wav, saved)
     } else {
         let choice = a.channels.role_choice();
@@ -112,6 +116,7 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
                 out.display()
             );
             variant = run.variant;
+            drive = drive.or(run.drive.map(|d| d.description));
         }
         if let Some(l) = label.clone() {
             variant.label = l;
@@ -130,7 +135,11 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
         }
         analysis.set_isolation_band(Some(band));
     }
-    finish(&analysis, variant, &out, &wav, a.hits)
+    if let Some(d) = &drive {
+        d.check()
+            .map_err(|e| e.context(format!("the drive stored in '{}'", out.display())))?;
+    }
+    finish(&analysis, variant, &out, &wav, a.hits, drive.as_ref())
 }
 
 /// The JSON and the CSV beside it must not replace an input, a file of another kind or
@@ -197,7 +206,7 @@ fn parse_freq_or_band(s: &str) -> std::result::Result<(f64, f64), String> {
 /// file is checked like command-line settings, its recording must lie in its folder and
 /// match it (channels, rate, length), and the recording's own calibration and full scale
 /// are taken from the run, so re-analysis reproduces the capture.
-fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
+fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
     let saved = RunFile::load(json)?;
     let shown = json.display();
     let wav = saved.wav_path(json).ok_or_else(|| {
@@ -252,7 +261,12 @@ fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
     analysis.set_disarmed(saved.disarmed.clone());
     let mut analysis = crate::pipeline::drain_into(&mut src, analysis)?;
     analysis.apply_verdicts(&saved.hits);
-    Ok((analysis, wav, saved.variant))
+    let drive = saved.drive.map(|d| d.description);
+    if let Some(d) = &drive {
+        d.check()
+            .map_err(|e| e.context(format!("the drive stored in '{shown}'")))?;
+    }
+    Ok((analysis, wav, saved.variant, drive))
 }
 
 fn finish(
@@ -261,6 +275,7 @@ fn finish(
     out: &Path,
     wav: &Path,
     show_hits: bool,
+    drive: Option<&crate::drive::Drive>,
 ) -> Result<()> {
     let fs = analysis.info().sample_rate;
     let hits = analysis.hits();
@@ -280,7 +295,7 @@ fn finish(
         encoding,
         gaps: &[],
     };
-    let run = write_run_files(analysis, variant, out, Some(note))?;
+    let run = write_run_files(analysis, variant, out, Some(note), drive)?;
     if run
         .recording
         .as_ref()
@@ -332,6 +347,9 @@ fn finish(
         run.setup.fft.resolution_hz
     );
     print!("{}", report::mode_table(&run.modes));
+    if let Some(d) = &run.drive {
+        print!("{}", crate::drive::report::summary(d, &run.modes));
+    }
     for n in &run.notes {
         println!("note: {n}");
     }

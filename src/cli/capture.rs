@@ -38,10 +38,13 @@ pub struct CaptureArgs {
     pub channels: ChannelArgs,
     #[command(flatten)]
     pub analysis: AnalysisArgs,
+    #[command(flatten)]
+    pub drive: super::drive_args::DriveArgs,
 }
 
 pub fn run(a: &CaptureArgs) -> Result<()> {
     let cfg = a.analysis.config()?;
+    let drive = a.drive.drive()?;
     let opened = a.source.open(&a.channels, true)?;
     let info = opened.source.info().clone();
     validate::check_analysis(&cfg, &info, &opened.roles, "the command line")?;
@@ -113,7 +116,13 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
                 if accepted_now {
                     // Save as each accepted hit lands: nothing accepted is lost later.
                     let saved_now = rec.flush().and_then(|()| {
-                        write_run_files(&analysis, variant.clone(), &json, Some(note(&rec, &wav)))
+                        write_run_files(
+                            &analysis,
+                            variant.clone(),
+                            &json,
+                            Some(note(&rec, &wav)),
+                            drive.as_ref(),
+                        )
                     });
                     match saved_now {
                         Ok(run) => saved = Some(run),
@@ -167,7 +176,7 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
                 encoding,
                 gaps: &gaps,
             };
-            write_run_files(&analysis, variant, &json, Some(note))?
+            write_run_files(&analysis, variant, &json, Some(note), drive.as_ref())?
         }
     };
     eprintln!(
@@ -189,6 +198,9 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
         }
     );
     print!("{}", report::mode_table(&run.modes));
+    if let Some(d) = &run.drive {
+        print!("{}", crate::drive::report::summary(d, &run.modes));
+    }
     println!("wrote {} and {}", wav.display(), json.display());
     if let Some(e) = failure {
         return Err(e.context(format!(

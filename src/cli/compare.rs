@@ -53,6 +53,9 @@ pub struct CompareArgs {
     /// Print the comparison as CSV (one row per pair, unpaired mode, mount and prediction).
     #[arg(long)]
     pub csv: bool,
+    /// Judge every run against this drive [default: the drive stored in the runs].
+    #[command(flatten)]
+    pub drive: super::drive_args::DriveArgs,
 }
 
 /// `A=B` or `RUN:A=B` with positive integers.
@@ -140,6 +143,7 @@ pub fn run(a: &CompareArgs) -> Result<()> {
         repeats: a.repeats,
         isolation_band: a.isolation,
         predicted,
+        drive: a.drive.drive()?,
     };
     let c = compare_with(&runs, &o)?;
     if a.json {

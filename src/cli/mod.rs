@@ -6,6 +6,7 @@ pub mod args;
 pub mod bench;
 pub mod capture;
 pub mod compare;
+pub mod drive_args;
 pub mod ports;
 pub mod report;
 pub mod simulate;
@@ -17,7 +18,8 @@ use clap::{Parser, Subcommand};
 
 const SAFETY: &str = "Safety: take the propellers off, disconnect the flight battery and secure the \
 craft before tapping it; tap gently. This tool's findings do not replace the manufacturer's \
-guidance, local rules or a careful first hover.";
+guidance, local rules or a careful first hover; the motor-band verdicts are estimates from \
+nameplate values, guidance only. No motor is run.";
 
 /// Bench tap-testing for multirotor frames and parts: tap a part, get its averaged
 /// frequency response, coherence, modes and damping, and compare variants.

@@ -26,10 +26,13 @@ pub struct TuiArgs {
     pub channels: ChannelArgs,
     #[command(flatten)]
     pub analysis: AnalysisArgs,
+    #[command(flatten)]
+    pub drive: super::drive_args::DriveArgs,
 }
 
 pub fn run(a: &TuiArgs) -> Result<()> {
     let config = a.analysis.config()?;
+    let drive = a.drive.drive()?;
     let opened = a.source.open(&a.channels, false)?;
     crate::run::validate::check_analysis(
         &config,
@@ -46,5 +49,6 @@ pub fn run(a: &TuiArgs) -> Result<()> {
         auto_tap_s: a.auto_tap.filter(|s| *s > 0.0),
         demo: opened.demo,
         compare_with: a.compare.clone(),
+        drive,
     })
 }

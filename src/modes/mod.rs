@@ -119,6 +119,9 @@ pub struct Mode {
     /// Ring-down damping from the response alone (see `ringdown`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub ringdown: Option<ringdown::RingdownSummary>,
+    /// Verdict against the motors' excitation bands (see `drive`), when a drive was given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub band: Option<crate::drive::BandVerdict>,
 }
 
 /// A frequency and damping pair from one method (window's damping removed).
@@ -447,6 +450,7 @@ pub fn search_modes(
                 spectrum_fit: None,
                 uncertainty: None,
                 ringdown: None,
+                band: None,
             }
         })
         .collect();

@@ -104,6 +104,9 @@ pub struct RunFile {
     /// Isolation of the mount where the user asked for it (transmissibility in dB).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub isolation: Option<Isolation>,
+    /// The motors' excitation bands and the mount's isolation over them (see `drive`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub drive: Option<crate::drive::DriveSection>,
     /// Things the reader of these numbers should know.
     pub notes: Vec<String>,
     /// Peaks of the curve that are not listed as modes, each with its reason.
@@ -164,6 +167,7 @@ impl RunFile {
             frf_csv: None,
             mount: result.mount.clone(),
             isolation: result.isolation.clone(),
+            drive: None,
             notes: result.notes.clone(),
             left_out: found.left_out.clone(),
             incoherent_peaks: found.incoherent_peaks,
@@ -425,15 +429,20 @@ pub fn format_utc(secs: u64) -> String {
 }
 
 /// Write the mode list (JSON) and the curve (CSV, same stem) for an analysis. The JSON
-/// names its recording and CSV by paths relative to itself.
+/// names its recording and CSV by paths relative to itself. With a drive, the modes get
+/// their band verdicts and the run its drive section.
 pub fn write_run_files(
     analysis: &Analysis,
     variant: Variant,
     json_path: &Path,
     recording: Option<RecordingNote<'_>>,
+    drive: Option<&crate::drive::Drive>,
 ) -> Result<RunFile> {
     let result = analysis.result();
     let mut run = RunFile::from_analysis(analysis, &result, variant);
+    if let Some(d) = drive {
+        crate::drive::annotate(&mut run, d, &result.spectra);
+    }
     if let Some(r) = recording {
         run.recording = Some(RecordingRef {
             wav: relative_to(json_path, r.wav),

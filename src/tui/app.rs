@@ -59,6 +59,7 @@ fn prepare(launch: &Launch) -> Result<(Engine, Model)> {
         config: launch.config.clone(),
         out_dir: launch.out_dir.clone(),
         label: label.clone(),
+        drive: launch.drive.clone(),
     })?;
     let a = engine.analysis();
     let mut available = Vec::new();
@@ -89,6 +90,7 @@ fn prepare(launch: &Launch) -> Result<(Engine, Model)> {
     model.label = label;
     model.auto_tap_s = launch.auto_tap_s.filter(|s| *s > 0.0);
     model.auto_tap_on = launch.demo && model.auto_tap_s.is_some();
+    model.drive = launch.drive.clone();
     Ok((engine, model))
 }
 

@@ -58,6 +58,7 @@ fn launch_for(source: Box<dyn Source>, out_dir: PathBuf, demo: bool) -> Result<L
         auto_tap_s: None,
         demo,
         compare_with: Vec::new(),
+        drive: None,
     })
 }
 

@@ -212,6 +212,8 @@ pub struct EngineSetup {
     pub config: AnalysisConfig,
     pub out_dir: PathBuf,
     pub label: String,
+    /// Bands for the modes' verdicts and the mount's isolation (see `drive`).
+    pub drive: Option<crate::drive::Drive>,
 }
 
 struct Tail {
@@ -547,7 +549,13 @@ impl Engine {
             encoding,
             gaps: &gaps,
         };
-        match write_run_files(&self.analysis, variant, &json, Some(note)) {
+        match write_run_files(
+            &self.analysis,
+            variant,
+            &json,
+            Some(note),
+            self.setup.drive.as_ref(),
+        ) {
             Ok(run) => {
                 self.wrote_json = true;
                 self.dirty = false;
@@ -653,7 +661,7 @@ impl Engine {
                 response_unit: info.channels[roles.response].unit.clone(),
             }
         });
-        let run = RunFile::from_analysis(
+        let mut run = RunFile::from_analysis(
             a,
             &result,
             Variant {
@@ -662,6 +670,9 @@ impl Engine {
                 mass_g: None,
             },
         );
+        if let Some(d) = &self.setup.drive {
+            crate::drive::annotate(&mut run, d, spectra);
+        }
         AnalysisSnap {
             version: self.version,
             hits: a.hits().to_vec(),

@@ -8,6 +8,7 @@
 
 pub mod app;
 pub mod bench;
+pub mod drive_view;
 pub mod engine;
 pub mod model;
 pub mod view;
@@ -42,6 +43,8 @@ pub struct Launch {
     pub demo: bool,
     /// Saved runs to load for overlay and comparison at start.
     pub compare_with: Vec<PathBuf>,
+    /// The motors' excitation bands to draw and judge modes against.
+    pub drive: Option<crate::drive::Drive>,
 }
 
 /// Put the terminal back as it was: cooked mode, main screen, visible cursor.
@@ -134,6 +137,7 @@ impl Launch {
             auto_tap_s: None,
             demo: true,
             compare_with: Vec::new(),
+            drive: None,
         })
     }
 }

@@ -38,6 +38,7 @@ pub enum Action {
     ZoomIn,
     ZoomOut,
     ZoomReset,
+    LogAxis,
     PanLeft,
     PanRight,
     CursorLeft,
@@ -66,6 +67,7 @@ pub const KEYS: &[(&str, Action, &str)] = &[
     ("v", Action::View, "FRF/spectrum/transmissib."),
     ("i/o", Action::ZoomIn, "zoom frequency in / out"),
     ("0", Action::ZoomReset, "whole search band"),
+    ("g", Action::LogAxis, "log / linear freq. axis"),
     ("Left/Right", Action::CursorLeft, "move the cursor"),
     (",/.", Action::PanLeft, "pan the frequency axis"),
     ("m", Action::NextMode, "cursor to the next mode"),
@@ -83,7 +85,7 @@ pub const KEYS: &[(&str, Action, &str)] = &[
 pub const SAFETY: &[&str] = &[
     "Before tapping: propellers OFF, flight battery DISCONNECTED, craft SECURED on the bench.",
     "Tap gently; a hard hammer blow can crack carbon or loosen parts.",
-    "These numbers do not replace the manufacturer's guidance, local rules or a careful first hover.",
+    "Numbers and band verdicts do not replace the manufacturer's guidance, local rules or a careful first hover.",
 ];
 
 /// Map a key press to an action (normal mode).
@@ -109,6 +111,7 @@ pub fn action_for(key: &KeyEvent) -> Option<Action> {
         KeyCode::Char('i') => Action::ZoomIn,
         KeyCode::Char('o') => Action::ZoomOut,
         KeyCode::Char('0') => Action::ZoomReset,
+        KeyCode::Char('g') => Action::LogAxis,
         KeyCode::Char(',') | KeyCode::Char('<') => Action::PanLeft,
         KeyCode::Char('.') | KeyCode::Char('>') => Action::PanRight,
         KeyCode::Left => Action::CursorLeft,
@@ -239,6 +242,10 @@ pub struct Model {
     /// Sequence number of the last command sent, and of the last that changes the run.
     pub sent_seq: u64,
     pub change_seq: u64,
+    /// Logarithmic frequency axis on the curve plot.
+    pub log_freq: bool,
+    /// The motors' excitation bands drawn on the curve (see `drive`).
+    pub drive: Option<crate::drive::Drive>,
 }
 
 impl Model {
@@ -271,6 +278,8 @@ impl Model {
             quit: false,
             sent_seq: 0,
             change_seq: 0,
+            log_freq: false,
+            drive: None,
         }
     }
 
@@ -570,6 +579,7 @@ fn act(m: &mut Model, a: Action, fx: &mut Vec<Effect>) {
             let lo = c - frac * new_span;
             m.view_hz = clamp_range(lo, new_span, m.nyquist());
         }
+        Action::LogAxis => m.log_freq = !m.log_freq,
         Action::ZoomReset => {
             m.view_hz = m.header.band_hz;
             m.cursor_hz = m.cursor_hz.clamp(m.view_hz.0, m.view_hz.1);

@@ -570,12 +570,14 @@ fn draw_curve(m: &Model, f: &mut Frame, area: Rect) {
     };
     let (pg, pp) = split(plot);
     let buckets = (pp.width as usize * 2).max(16);
-    let cur_pts = curve.map(|c| decimate(&c.freqs, &c.db, (lo, hi), buckets, true));
+    let axis = super::drive_view::FreqAxis::of(m);
+    let (x0, x1) = axis.range();
+    let cur_pts = curve.map(|c| decimate(&axis.xs(&c.freqs), &c.db, (x0, x1), buckets, true));
     let ov_pts: Vec<Vec<(f64, f64)>> = overlays
         .iter()
-        .map(|(_, c)| decimate(&c.freqs, &c.magnitude_db, (lo, hi), buckets, true))
+        .map(|(_, c)| decimate(&axis.xs(&c.freqs), &c.magnitude_db, (x0, x1), buckets, true))
         .collect();
-    let in_view = |p: &&(f64, f64)| p.0 >= lo && p.0 <= hi;
+    let in_view = |p: &&(f64, f64)| p.0 >= x0 && p.0 <= x1;
     let all = cur_pts.iter().flatten().chain(ov_pts.iter().flatten());
     let (mut ymin, mut ymax) = all
         .filter(in_view)
@@ -595,13 +597,19 @@ fn draw_curve(m: &Model, f: &mut Frame, area: Rect) {
         a.modes
             .iter()
             .filter(|x| x.frequency_hz >= lo && x.frequency_hz <= hi)
-            .map(|x| (x.frequency_hz, 20.0 * x.magnitude.max(1e-300).log10()))
+            .map(|x| {
+                (
+                    axis.x(x.frequency_hz),
+                    20.0 * x.magnitude.max(1e-300).log10(),
+                )
+            })
             .collect()
     });
     let cursor = m.cursor_hz;
+    let cx = axis.x(cursor);
     let canvas = Canvas::default()
         .marker(Marker::Braille)
-        .x_bounds([lo, hi])
+        .x_bounds([x0, x1])
         .y_bounds([ymin, ymax])
         .paint(|ctx: &mut Context| {
             for (i, pts) in ov_pts.iter().enumerate() {
@@ -617,7 +625,7 @@ fn draw_curve(m: &Model, f: &mut Frame, area: Rect) {
                 }
                 ctx.layer();
             }
-            ctx.draw(&CLine::new(cursor, ymin, cursor, ymax, CURSOR));
+            ctx.draw(&CLine::new(cx, ymin, cx, ymax, CURSOR));
             ctx.layer();
             for (fm, y) in &modes {
                 ctx.print(
@@ -628,6 +636,7 @@ fn draw_curve(m: &Model, f: &mut Frame, area: Rect) {
             }
         });
     f.render_widget(canvas, pp);
+    super::drive_view::shade_bands(m, f, pp, &axis);
     let gut = vec![Line::from(format!("{:>5.0}", ymax)), Line::from(" dB")];
     f.render_widget(Paragraph::new(gut), pg);
     if pg.height >= 3 {
@@ -638,17 +647,17 @@ fn draw_curve(m: &Model, f: &mut Frame, area: Rect) {
     let coh_vals = curve.and_then(|c| c.coherence.as_ref().map(|v| (c, v)));
     if let Some((c, vals)) = coh_vals.filter(|_| coh_h > 0) {
         let (cg, cp) = split(coh);
-        let pts = decimate(&c.freqs, vals, (lo, hi), buckets, false);
+        let pts = decimate(&axis.xs(&c.freqs), vals, (x0, x1), buckets, false);
         let canvas = Canvas::default()
             .marker(Marker::Braille)
-            .x_bounds([lo, hi])
+            .x_bounds([x0, x1])
             .y_bounds([0.0, 1.0])
             .paint(|ctx: &mut Context| {
                 for w in pts.windows(2) {
                     ctx.draw(&CLine::new(w[0].0, w[0].1, w[1].0, w[1].1, Color::Reset));
                 }
                 ctx.layer();
-                ctx.draw(&CLine::new(cursor, 0.0, cursor, 1.0, CURSOR));
+                ctx.draw(&CLine::new(cx, 0.0, cx, 1.0, CURSOR));
             });
         f.render_widget(
             Block::default().borders(Borders::TOP).border_style(dim()),
@@ -668,9 +677,9 @@ fn draw_curve(m: &Model, f: &mut Frame, area: Rect) {
     let (_, xp) = split(xlab);
     let w = xp.width as usize;
     let (l, mid, r) = (
-        fmt_hz(lo),
-        fmt_hz(0.5 * (lo + hi)),
-        format!("{} Hz", fmt_hz(hi)),
+        fmt_hz(axis.lo_hz),
+        fmt_hz(axis.f_at(0.5)),
+        format!("{} Hz{}", fmt_hz(hi), if axis.log { " log" } else { "" }),
     );
     let mut s = l.clone();
     let mid_at = (w / 2).saturating_sub(mid.len() / 2);
@@ -853,7 +862,10 @@ fn draw_modes(m: &Model, f: &mut Frame, area: Rect) {
                     .join("")
             };
             let at = if Some(i) == near { ">" } else { " " };
-            Row::new(vec![
+            let band = a
+                .and_then(|a| a.run.modes.get(i))
+                .and_then(|x| x.band.as_ref());
+            let mut cells = vec![
                 Cell::from(format!("{at}{}", i + 1)),
                 Cell::from(fmt_hz(md.frequency_hz)),
                 Cell::from(
@@ -862,29 +874,49 @@ fn draw_modes(m: &Model, f: &mut Frame, area: Rect) {
                 ),
                 Cell::from(md.q.map_or("-".into(), |q| format!("{q:.0}"))),
                 Cell::from(md.coherence.map_or("-".into(), |c| format!("{c:.3}"))),
-                Cell::from(Span::styled(
-                    flags,
-                    Style::default().fg(if md.flags.is_empty() {
-                        Color::Reset
-                    } else {
-                        Color::Red
-                    }),
-                )),
-            ])
+            ];
+            if m.drive.is_some() {
+                cells.push(Cell::from(super::drive_view::band_cell(band)));
+            }
+            cells.push(Cell::from(Span::styled(
+                flags,
+                Style::default().fg(if md.flags.is_empty() {
+                    Color::Reset
+                } else {
+                    Color::Red
+                }),
+            )));
+            Row::new(cells)
         })
         .collect();
-    let widths = [
+    let mut widths = vec![
         Constraint::Length(3),
         Constraint::Length(8),
         Constraint::Length(7),
         Constraint::Length(5),
         Constraint::Length(6),
-        Constraint::Min(5),
     ];
-    let header = Row::new(vec!["", "f Hz", "damp %", "Q", "coh", "flags"]).style(bold());
-    let legend_h = u16::from(!wide && inner.height as usize > modes.len() + 2);
-    let [t, l] = Layout::vertical([Constraint::Min(2), Constraint::Length(legend_h)]).areas(inner);
+    let mut head = vec!["", "f Hz", "damp %", "Q", "coh"];
+    if m.drive.is_some() {
+        widths.push(Constraint::Length(8));
+        head.push("band");
+    }
+    widths.push(Constraint::Min(5));
+    head.push("flags");
+    let header = Row::new(head).style(bold());
+    let mount = a.map_or_else(Vec::new, |a| super::drive_view::mount_lines(a));
+    let mount_h = (mount.len() as u16).min(inner.height.saturating_sub(3));
+    let legend_h = u16::from(!wide && inner.height as usize > modes.len() + 2 + mount.len());
+    let [t, mt, l] = Layout::vertical([
+        Constraint::Min(2),
+        Constraint::Length(mount_h),
+        Constraint::Length(legend_h),
+    ])
+    .areas(inner);
     f.render_widget(Table::new(rows, widths).header(header), t);
+    if mount_h > 0 {
+        f.render_widget(Paragraph::new(mount).wrap(Wrap { trim: false }), mt);
+    }
     if legend_h > 0 {
         f.render_widget(
             Paragraph::new("L few lines O overlap C low coh H no half-power W window").style(dim()),

@@ -2,6 +2,7 @@
 //! hit-to-hit spread and a repeatability floor, correct stiffness for mass, compare mounts
 //! and predictions.
 
+pub mod bands;
 pub mod matching;
 mod mount;
 pub mod predicted;
@@ -59,6 +60,8 @@ pub struct CompareOptions {
     pub isolation_band: Option<(f64, f64)>,
     /// Predicted modes (finite-element model or an earlier test) and where they came from.
     pub predicted: Option<(String, Vec<predicted::PredictedMode>)>,
+    /// Drive to judge every run's modes against (else the one stored in the runs).
+    pub drive: Option<crate::drive::Drive>,
 }
 
 impl Default for CompareOptions {
@@ -73,6 +76,7 @@ impl Default for CompareOptions {
             repeats: false,
             isolation_band: None,
             predicted: None,
+            drive: None,
         }
     }
 }
@@ -239,6 +243,9 @@ pub struct Comparison {
     /// With predicted modes: each run against the prediction.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub predicted: Option<predicted::PredictionReport>,
+    /// With a drive: the modes against the motors' excitation bands, before and after.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub bands: Option<bands::BandComparison>,
 }
 
 /// What the residue evidence is, in the output's words.
@@ -329,7 +336,9 @@ pub fn compare_with(runs: &[(String, RunFile)], o: &CompareOptions) -> Result<Co
         crate::fail!("compare needs at least two run files: a baseline and a variant");
     }
     let rules = resolve_rules(runs, o)?;
-    Ok(compare_resolved(runs, o, &rules))
+    let mut c = compare_resolved(runs, o, &rules);
+    c.bands = bands::compare_bands(&c, runs, o.drive.as_ref())?;
+    Ok(c)
 }
 
 fn compare_resolved(runs: &[(String, RunFile)], o: &CompareOptions, rules: &[Rules]) -> Comparison {
@@ -365,6 +374,7 @@ fn compare_resolved(runs: &[(String, RunFile)], o: &CompareOptions, rules: &[Rul
         },
         repeatability,
         predicted,
+        bands: None,
     }
 }
 

@@ -284,6 +284,9 @@ pub fn render_table(c: &Comparison) -> String {
         "    ",
     );
     s += "  conf = pairing confidence, 0.5 (toss-up) to 1; ! = residue signs differ\n";
+    if let Some(b) = &c.bands {
+        s += &super::bands::render(b);
+    }
     s
 }
 

@@ -1,0 +1,291 @@
+//! The motors' excitation bands: the worked example with its arithmetic, verdicts, the drive
+//! file and the command line (bad input is one sentence and a non-zero exit), and the
+//! verdicts on the demo recordings.
+//!
+//! f = KV x V x throttle / 60 (common practice, no source); 3.7 V per cell nominal (common
+//! practice, no source).
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use tapmodes::drive::{Drive, Verdict, judge};
+
+const BIN: &str = env!("CARGO_BIN_EXE_tapmodes");
+
+fn close(a: f64, b: f64) -> bool {
+    // Band edges to 0.1 %.
+    (a - b).abs() <= 1e-3 * b.abs()
+}
+
+/// 1300 rpm/V on 6 cells at 3.7 V nominal, hover at 35 % to full throttle, 3 blades.
+///
+/// pack     V = 6 x 3.7            = 22.2 V
+/// full     n = 1300 x 22.2 x 1.00 = 28 860 rpm -> 28 860 / 60 = 481.0 Hz
+/// hover    n = 1300 x 22.2 x 0.35 = 10 101 rpm -> 10 101 / 60 = 168.35 Hz
+/// rotation      168.35 - 481.0 Hz
+/// 2x rotation   336.7  - 962.0 Hz
+/// 3x rotation   505.05 - 1443.0 Hz
+/// blade pass    3 x rotation = 505.05 - 1443.0 Hz
+#[test]
+fn worked_example() {
+    let d = Drive::nameplate(1300.0, 6, None, (35.0, 100.0), 3).unwrap();
+    assert!(close(d.pack_volts().unwrap(), 22.2));
+    let (lo, hi) = d.rpm_range();
+    assert!(close(lo, 10_101.0) && close(hi, 28_860.0), "{lo} {hi}");
+    let b = d.bands();
+    let want = [
+        ("rotation", 168.35, 481.0),
+        ("2x rotation", 336.7, 962.0),
+        ("3x rotation", 505.05, 1443.0),
+        ("blade pass", 505.05, 1443.0),
+    ];
+    assert_eq!(b.bands.len(), want.len());
+    for (band, (name, lo, hi)) in b.bands.iter().zip(want) {
+        assert_eq!(band.name, name);
+        assert!(close(band.hz.0, lo) && close(band.hz.1, hi), "{band:?}");
+    }
+    // Verdicts (near margin 10 % of the nearest edge):
+    // 150 Hz: (168.35 - 150) / 168.35 = 10.90 % below rotation -> clear
+    let v = judge(&b, 150.0).unwrap();
+    assert_eq!((v.verdict, v.name.as_str()), (Verdict::Clear, "rotation"));
+    assert!((v.margin_pct - 10.90).abs() < 0.01, "{v:?}");
+    // 160 Hz: (168.35 - 160) / 168.35 = 4.96 % below rotation -> near
+    let v = judge(&b, 160.0).unwrap();
+    assert_eq!(v.verdict, Verdict::Near);
+    assert!((v.margin_pct - 4.96).abs() < 0.01, "{v:?}");
+    // 200 Hz: inside rotation, 31.65 Hz above its lower edge: -31.65 / 168.35 = -18.80 %
+    let v = judge(&b, 200.0).unwrap();
+    assert_eq!((v.verdict, v.name.as_str()), (Verdict::Inside, "rotation"));
+    assert!((v.margin_pct + 18.80).abs() < 0.01, "{v:?}");
+    // 2000 Hz: (2000 - 1443) / 1443 = 38.60 % above 3x rotation and blade pass -> clear
+    let v = judge(&b, 2000.0).unwrap();
+    assert_eq!(v.verdict, Verdict::Clear);
+    assert!((v.margin_pct - 38.60).abs() < 0.01, "{v:?}");
+    // A sagged pack, 3.5 V per cell: every edge 3.5 / 3.7 = 0.946 of the nominal one.
+    let s = Drive::nameplate(1300.0, 6, Some(3.5), (35.0, 100.0), 3).unwrap();
+    assert!(close(s.bands().bands[0].hz.1, 481.0 * 3.5 / 3.7));
+    // An rpm range gives the same bands as the nameplate values that imply it.
+    let r = Drive::from_rpm((10_101.0, 28_860.0), 3).unwrap();
+    for (x, y) in r.bands().bands.iter().zip(&b.bands) {
+        assert!(close(x.hz.0, y.hz.0) && close(x.hz.1, y.hz.1));
+    }
+}
+
+fn scratch(name: &str) -> PathBuf {
+    let d = std::env::temp_dir().join(format!("tapmodes-drive-{}-{name}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+fn root() -> &'static Path {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+}
+
+fn run(args: &[&str]) -> (i32, String, String) {
+    let o = Command::new(BIN).args(args).output().unwrap();
+    (
+        o.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&o.stdout).into_owned(),
+        String::from_utf8_lossy(&o.stderr).into_owned(),
+    )
+}
+
+#[test]
+fn bad_drive_input_is_one_sentence_and_a_nonzero_exit() {
+    let dir = scratch("bad");
+    let wav = root().join("recordings/arm-solid.wav");
+    let out = dir.join("x.json");
+    let bad_file = dir.join("bad.drive");
+    std::fs::write(&bad_file, "motor_kv = 1300\ncells = 6\nthrottle = 35:100\n").unwrap();
+    let w = wav.to_str().unwrap();
+    let o = out.to_str().unwrap();
+    let cases: Vec<(Vec<&str>, &str)> = vec![
+        (
+            vec![
+                "--motor-kv",
+                "1300",
+                "--cells",
+                "0",
+                "--throttle",
+                "35:100",
+                "--blades",
+                "3",
+            ],
+            "cells must be",
+        ),
+        (
+            vec![
+                "--motor-kv",
+                "1300",
+                "--cells",
+                "6",
+                "--throttle",
+                "35:120",
+                "--blades",
+                "3",
+            ],
+            "0-100 %",
+        ),
+        (
+            vec![
+                "--motor-kv",
+                "1300",
+                "--cells",
+                "6",
+                "--throttle=-5:100",
+                "--blades",
+                "3",
+            ],
+            "0-100 %",
+        ),
+        (
+            vec!["--motor-kv", "1300", "--cells", "6", "--throttle", "35:100"],
+            "--blades",
+        ),
+        (vec!["--rpm", "9000:3000", "--blades", "2"], "rpm range"),
+        (
+            vec!["--drive", bad_file.to_str().unwrap()],
+            "does not give 'blades'",
+        ),
+        (
+            vec!["--drive", "no-such.drive"],
+            "cannot read the drive file",
+        ),
+    ];
+    for (extra, want) in cases {
+        let mut args = vec!["analyze", w, "--out", o];
+        args.extend(&extra);
+        let (code, _, err) = run(&args);
+        assert_ne!(code, 0, "{extra:?}");
+        assert!(!err.contains("panicked"), "{extra:?}: {err}");
+        assert!(err.contains(want), "{extra:?}: {err}");
+        assert_eq!(err.trim().lines().count(), 1, "{extra:?}: {err}");
+        assert!(!out.exists(), "{extra:?}: wrote a run despite bad input");
+    }
+    // clap's own checks: --motor-kv without --cells, --rpm with --motor-kv.
+    for extra in [
+        vec!["--motor-kv", "1300", "--blades", "3"],
+        vec![
+            "--rpm",
+            "1:2",
+            "--motor-kv",
+            "1300",
+            "--cells",
+            "6",
+            "--throttle",
+            "35:100",
+            "--blades",
+            "2",
+        ],
+    ] {
+        let mut args = vec!["analyze", w, "--out", o];
+        args.extend(&extra);
+        let (code, _, err) = run(&args);
+        assert_eq!(code, 2, "{extra:?}: {err}");
+    }
+}
+
+fn modes_of(json: &Path) -> (Vec<f64>, Vec<serde_json::Value>, serde_json::Value) {
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(json).unwrap()).unwrap();
+    let modes = v["modes"].as_array().unwrap();
+    (
+        modes
+            .iter()
+            .map(|m| m["frequency_hz"].as_f64().unwrap())
+            .collect(),
+        modes.iter().map(|m| m["band"].clone()).collect(),
+        v["drive"].clone(),
+    )
+}
+
+/// The demo recordings against the TM9 drive file: every mode's verdict agrees with the
+/// band edges worked out above, and the brace moves the first arm mode into the rotation
+/// band while the lightening holes keep it clear.
+#[test]
+fn demo_recordings_verdicts_and_compare() {
+    let dir = scratch("demo");
+    let drive = root().join("recordings/tm9.drive");
+    let edges = [
+        (168.35, 481.0),
+        (336.7, 962.0),
+        (505.05, 1443.0),
+        (505.05, 1443.0),
+    ];
+    let mut first = Vec::new();
+    for name in ["arm-solid", "arm-holed", "arm-braced", "stack-soft"] {
+        std::fs::copy(
+            root().join(format!("recordings/{name}.wav")),
+            dir.join(format!("{name}.wav")),
+        )
+        .unwrap();
+        let json = dir.join(format!("{name}.json"));
+        let mut args = vec![
+            "analyze".to_string(),
+            dir.join(format!("{name}.wav")).display().to_string(),
+            "--out".into(),
+            json.display().to_string(),
+            "--drive".into(),
+            drive.display().to_string(),
+        ];
+        if name.starts_with("stack") {
+            args.extend(["--response-channel", "2", "--base-channel", "1"].map(String::from));
+        }
+        let args: Vec<&str> = args.iter().map(String::as_str).collect();
+        let (code, out, err) = run(&args);
+        assert_eq!(code, 0, "{name}: {err}");
+        assert!(out.contains("drive: KV 1300, 6 x 3.7 V = 22.2 V"), "{out}");
+        let (freqs, bands, section) = modes_of(&json);
+        assert_eq!(section["bands"].as_array().unwrap().len(), 4);
+        for (f, b) in freqs.iter().zip(&bands) {
+            let inside = edges.iter().any(|(lo, hi)| f >= lo && f <= hi);
+            let nearest = edges
+                .iter()
+                .map(|(lo, hi)| if f < lo { (lo - f) / lo } else { (f - hi) / hi })
+                .fold(f64::INFINITY, f64::min);
+            let want = if inside {
+                "inside"
+            } else if nearest < 0.10 {
+                "near"
+            } else {
+                "clear"
+            };
+            assert_eq!(b["verdict"], want, "{name} {f} Hz: {b}");
+        }
+        first.push((
+            name,
+            freqs[0],
+            bands[0]["verdict"].as_str().unwrap().to_string(),
+        ));
+        if name == "stack-soft" {
+            let iso = section["isolation"].as_array().unwrap();
+            assert_eq!(iso.len(), 2, "rotation and blade pass: {section}");
+            assert!(iso[0]["model_db"].as_f64().unwrap() < 0.0, "{section}");
+            assert!(out.contains("mount over rotation"), "{out}");
+        }
+    }
+    assert_eq!(first[0].2, "clear", "{first:?}");
+    assert_eq!(first[1].2, "clear", "{first:?}");
+    assert_eq!(first[2].2, "inside", "{first:?}");
+    let (code, out, err) = run(&[
+        "compare",
+        dir.join("arm-solid.json").to_str().unwrap(),
+        dir.join("arm-braced.json").to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("into rotation"), "{out}");
+    let (code, out, _) = run(&[
+        "compare",
+        "--json",
+        dir.join("arm-solid.json").to_str().unwrap(),
+        dir.join("arm-braced.json").to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0);
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    let ch = &v["bands"]["variants"][0]["changes"][0];
+    assert_eq!(ch["movement"], "moved_in");
+    let m = ch["margin_change_pct"].as_f64().unwrap();
+    let want = ch["variant"]["margin_pct"].as_f64().unwrap()
+        - ch["baseline"]["margin_pct"].as_f64().unwrap();
+    assert!((m - want).abs() < 1e-9 && m < 0.0, "{ch}");
+}
