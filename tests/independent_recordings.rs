@@ -291,3 +291,159 @@ fn a_stack_on_real_grommets_is_flagged_when_one_mount_mode_does_not_explain_it()
         r.notes
     );
 }
+
+/// The accuracy table of `bench/independent.md`: every recording with its default roles
+/// (the stacks with their base channel), every target mode found or not, frequency and
+/// damping errors, modes that match no FE mode, modes on a mains line, clean taps rejected.
+/// Regenerate with
+/// `cargo test --release --test independent_recordings accuracy_table -- --ignored --nocapture`.
+#[test]
+#[ignore]
+fn accuracy_table() {
+    let files: [(&str, &str, RoleChoice); 9] = [
+        (
+            "tm9-frame-48k-s1",
+            "force, piezo, hum, 48 kHz",
+            RoleChoice::default(),
+        ),
+        (
+            "tm9-frame-48k-s2",
+            "force, piezo, hum, 48 kHz",
+            RoleChoice::default(),
+        ),
+        (
+            "tube-cantilever-48k-stereo",
+            "force, piezo, hum, 48 kHz",
+            RoleChoice::default(),
+        ),
+        (
+            "tube-cantilever-48k-mono",
+            "response only, piezo, hum, 48 kHz",
+            RoleChoice::default(),
+        ),
+        (
+            "timoshenko-strip-44k1-mono",
+            "response only, piezo, hum, 44.1 kHz",
+            RoleChoice::default(),
+        ),
+        (
+            "strip-cantilever-mems-3k2",
+            "response only, MEMS 12-bit, 3.2 kHz",
+            RoleChoice::default(),
+        ),
+        (
+            "tm9-frame-mems-3k2",
+            "response only, MEMS 12-bit, 3.2 kHz",
+            RoleChoice::default(),
+        ),
+        (
+            "tm9-stack-8k-3ch",
+            "force, base, stack, 8 kHz",
+            RoleChoice {
+                force: Some(0),
+                base: Some(1),
+                response: Some(2),
+                no_force: false,
+            },
+        ),
+        (
+            "tm9-stack-mems-3k2",
+            "base, stack, MEMS 3.2 kHz",
+            RoleChoice {
+                force: None,
+                base: Some(0),
+                response: Some(1),
+                no_force: true,
+            },
+        ),
+    ];
+    println!(
+        "| recording | chain | target modes found | f error % (each) | damping error % (each) | modes matching no FE mode | on a mains line | clean taps rejected |"
+    );
+    println!("|---|---|---|---|---|---|---|---|");
+    let (mut f_force, mut z_force, mut f_resp, mut z_resp) = (vec![], vec![], vec![], vec![]);
+    for (name, chain, choice) in files {
+        let t = truth(name);
+        let path = format!(
+            "{}/tests/independent/{name}.wav",
+            env!("CARGO_MANIFEST_DIR")
+        );
+        let mut src = WavSource::open(std::path::Path::new(&path)).unwrap();
+        let fs = src.info().sample_rate;
+        let roles = choice.resolve(src.info()).unwrap();
+        let a = analyse_source(&mut src, roles, AnalysisConfig::default(), false).unwrap();
+        let r = a.result();
+        let modes = r.modes();
+        let (mut found, mut fe, mut ze) = (0, vec![], vec![]);
+        for (f_true, z_true) in t.modes.iter().filter(|m| t.targets.contains(&m.0)) {
+            // Found: a reported mode within a quarter of the half-power bandwidth... or 1 %.
+            let tol = (0.5 * z_true).max(0.005) * f_true;
+            let Some(m) = modes
+                .iter()
+                .filter(|m| (m.frequency_hz - f_true).abs() < tol)
+                .min_by(|a, b| {
+                    (a.frequency_hz - f_true)
+                        .abs()
+                        .total_cmp(&(b.frequency_hz - f_true).abs())
+                })
+            else {
+                continue;
+            };
+            found += 1;
+            let e = 100.0 * (m.frequency_hz - f_true) / f_true;
+            fe.push(format!("{e:+.3}"));
+            let zr = m.damping_ratio.map(|z| 100.0 * (z - z_true) / z_true);
+            ze.push(zr.map_or("-".into(), |v| format!("{v:+.1}")));
+            let (fv, zv) = if roles.force.is_some() {
+                (&mut f_force, &mut z_force)
+            } else {
+                (&mut f_resp, &mut z_resp)
+            };
+            fv.push(e.abs());
+            if let Some(v) = zr {
+                zv.push(v.abs());
+            }
+        }
+        let stray = modes
+            .iter()
+            .filter(|m| {
+                !t.modes
+                    .iter()
+                    .any(|(f, _)| (m.frequency_hz - f).abs() < 0.02 * f)
+            })
+            .count();
+        let hum = modes
+            .iter()
+            .filter(|m| t.hum.iter().any(|h| (m.frequency_hz - h).abs() < 1.5))
+            .count();
+        let rejected = t
+            .taps
+            .iter()
+            .enumerate()
+            .filter(|(i, (time, kind))| {
+                let crowded = t.taps.get(i + 1).is_some_and(|n| n.0 - time < 1.0);
+                kind == "clean"
+                    && !crowded
+                    && verdict_at(&a, fs, *time).is_some_and(|v| v != Verdict::Accepted)
+            })
+            .count();
+        println!(
+            "| {name} | {chain} | {found} of {} | {} | {} | {stray} | {hum} | {rejected} |",
+            t.targets.len(),
+            fe.join(", "),
+            ze.join(", ")
+        );
+    }
+    let median = |v: &mut Vec<f64>| {
+        v.sort_by(f64::total_cmp);
+        v.get(v.len() / 2).copied().unwrap_or(f64::NAN)
+    };
+    println!();
+    println!(
+        "Medians of |error| over the modes found: with a force channel, frequency {:.3} %, damping {:.1} %; response only, frequency {:.3} %, damping {:.1} %.",
+        median(&mut f_force),
+        median(&mut z_force),
+        median(&mut f_resp),
+        median(&mut z_resp)
+    );
+}
