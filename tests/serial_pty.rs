@@ -206,3 +206,78 @@ fn garbage_or_wrong_baud_is_diagnosed() {
     assert!(!stderr.contains("panicked"), "{stderr}");
     assert!(stderr.contains("baud"), "{stderr}");
 }
+
+/// Lines of bare numbers as a simple sketch prints them: an optional timestamp from a
+/// microsecond clock that starts at `t0_us` and ticks at `true_rate` (with +-`jitter_us`
+/// of scheduling noise), then the converter codes, separated by `sep`.
+fn sketch_lines(frames: &[Vec<i32>], stamps: Option<(f64, f64, f64)>, sep: &str) -> Vec<Vec<u8>> {
+    let mut rng = Rng::new(41);
+    frames
+        .chunks(64)
+        .enumerate()
+        .map(|(c, chunk)| {
+            let mut out = String::new();
+            for (j, f) in chunk.iter().enumerate() {
+                let k = (c * 64 + j) as f64;
+                if let Some((t0, rate, jitter)) = stamps {
+                    let t = t0 + 1e6 * k / rate + jitter * rng.range(-1.0, 1.0);
+                    out += &format!("{}{sep}", (t.round() as u64) % (1u64 << 32));
+                }
+                let vals: Vec<String> = f.iter().map(|v| v.to_string()).collect();
+                out += &vals.join(sep);
+                out += "\n";
+            }
+            out.into_bytes()
+        })
+        .collect()
+}
+
+#[test]
+fn headerless_sketches_with_and_without_timestamps() {
+    // A sketch that sends no header: bare numbers. (1) With a microsecond timestamp column
+    // whose clock runs 2 % fast against the nominal 8000 Hz, wrapping its 32-bit counter
+    // mid-run: the rate is measured from the stamps, so the 148 Hz mode reads 2 % high, as
+    // the device's own time says it is. (2) Without timestamps, spaces between fields and
+    // --rate trusted as given: the mode reads where the given rate puts it.
+    let (_, frames) = device_frames(14.0);
+    let true_rate = 8000.0 * 1.02;
+    /// Name, what the device writes, the capture's options, the 148 Hz mode's expected place.
+    type Case<'a> = (&'a str, Vec<Vec<u8>>, Vec<&'a str>, f64);
+    let cases: [Case; 2] = [
+        (
+            "stamped",
+            sketch_lines(&frames, Some((4_294_967_296.0 - 3e6, true_rate, 15.0)), ","),
+            vec!["--columns", "t@us,hammer,accel"],
+            148.0 * 1.02,
+        ),
+        (
+            "bare",
+            sketch_lines(&frames, None, " "),
+            vec!["--columns", "hammer,accel", "--rate", "8000"],
+            148.0,
+        ),
+    ];
+    for (name, chunks, extra, expected) in cases {
+        let (master, port) = pty();
+        let _dev = device(master, chunks, None);
+        let dir = temp_dir(&format!("pty-sketch-{name}"));
+        let (code, stdout, stderr) = capture(&port, &dir, &extra);
+        assert_eq!(code, 0, "{name}: {stderr}");
+        let (accepted, modes) = accepted_modes(&dir);
+        assert_eq!(accepted, 5, "{name}: {stderr}");
+        assert!(
+            modes.iter().any(|f| (f / expected - 1.0).abs() < 0.003),
+            "{name}: {modes:?} (expected {expected})\n{stdout}\n{stderr}"
+        );
+        if name == "stamped" {
+            assert!(stderr.contains("measured"), "{stderr}");
+        }
+    }
+    // Without a timestamp column and without --rate there is nothing to go by.
+    let (master, port) = pty();
+    let _dev = device(master, sketch_lines(&frames[..100], None, ","), None);
+    let dir = temp_dir("pty-sketch-norate");
+    let (code, _, stderr) = capture(&port, &dir, &["--columns", "hammer,accel"]);
+    assert_eq!(code, 1, "{stderr}");
+    assert!(stderr.contains("--rate"), "{stderr}");
+}

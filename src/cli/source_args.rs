@@ -18,6 +18,16 @@ pub struct SourceArgs {
     /// Baud rate for --serial (native USB ports ignore it).
     #[arg(long, default_value_t = 921_600, value_name = "N")]
     pub baud: u32,
+    /// For --serial devices that print bare numbers and no header: the columns of each line,
+    /// e.g. `t@us,force,accel_z`; a column marked @us or @ms is a timestamp (the rate is then
+    /// measured and samples are placed by time). Fields may be separated by commas,
+    /// semicolons, tabs or spaces.
+    #[arg(long, value_name = "NAMES", requires = "serial")]
+    pub columns: Option<String>,
+    /// Sample rate of a headerless stream, Hz: needed without a timestamp column (then it is
+    /// trusted as given); with one it sets the grid and the measured rate is reported.
+    #[arg(long, value_name = "HZ", requires = "columns")]
+    pub rate: Option<f64>,
     /// Sound-card input (optionally its name; see `tapmodes devices`). Needs the audio feature.
     #[arg(long, value_name = "NAME", num_args = 0..=1, default_missing_value = "", group = "src")]
     pub audio: Option<String>,
@@ -55,7 +65,18 @@ impl SourceArgs {
     pub fn open(&self, ch: &ChannelArgs, auto_taps: bool) -> Result<Opened> {
         let choice: RoleChoice = ch.role_choice();
         if let Some(path) = &self.serial {
-            let mut src = SerialSource::open(path, self.baud)?;
+            let mut src = match &self.columns {
+                Some(spec) => {
+                    let columns = crate::source::serial::headerless::Columns::parse(spec)?;
+                    if let Some(r) = self.rate
+                        && !(r.is_finite() && r > 0.0)
+                    {
+                        crate::fail!("--rate must be a positive number of Hz, not {r}");
+                    }
+                    SerialSource::open_headerless(path, self.baud, self.rate, &columns)?
+                }
+                None => SerialSource::open(path, self.baud)?,
+            };
             apply_calibration(&mut src.info_mut().channels, ch, &choice)?;
             let roles = choice.resolve(src.info())?;
             return Ok(Opened {

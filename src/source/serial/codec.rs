@@ -199,6 +199,16 @@ impl Decoder {
         d
     }
 
+    /// A decoder for text streams that send no header (plain sketches printing numbers):
+    /// `header` names the columns. Fields may be separated by commas, semicolons, tabs or
+    /// spaces; lines with another number of fields, or that are not numbers, are junk.
+    pub fn headerless(header: StreamHeader) -> Self {
+        let mut d = Self::with_form(WireForm::Text);
+        d.text.header = Some(header);
+        d.text.loose = true;
+        d
+    }
+
     /// Decodes `bytes` (any chunk of the stream) and appends what it completes to `out`.
     pub fn push(&mut self, bytes: &[u8], out: &mut Vec<Decoded>) {
         let mut rest = bytes;
@@ -420,6 +430,8 @@ struct TextDecoder {
     /// Numeric lines seen (a valid header counts 2), for sniffing.
     evidence: u32,
     notes: Vec<String>,
+    /// No header comes: any of `, ; tab space` separates fields.
+    loose: bool,
 }
 
 impl TextDecoder {
@@ -494,7 +506,15 @@ impl TextDecoder {
         };
         let n = h.channels.len();
         let mut values = Vec::with_capacity(n);
-        for (i, field) in line.split(',').enumerate() {
+        let fields: Box<dyn Iterator<Item = &str>> = if self.loose {
+            Box::new(
+                line.split([',', ';', '\t', ' '])
+                    .filter(|f| !f.trim().is_empty()),
+            )
+        } else {
+            Box::new(line.split(','))
+        };
+        for (i, field) in fields.enumerate() {
             let v = match field.trim().parse::<f64>() {
                 Ok(v) if v.is_finite() && i < n => v,
                 _ => {

@@ -2,6 +2,7 @@
 //! (`codec`, specified in firmware-notes/protocol.md), delivered as blocks.
 
 pub mod codec;
+pub mod headerless;
 
 use crate::error::{Error, Result};
 use crate::signal::{Block, ChannelInfo, Role, StreamInfo};
@@ -53,6 +54,13 @@ pub struct SerialSource {
     buf: Vec<u8>,
     /// A link failure held back until the frames received before it are delivered.
     deferred: Option<Error>,
+    /// The scale the decoded values already carry, per channel; a calibration from the
+    /// command line (`info.channels[c].scale`) multiplies by the ratio.
+    base_scales: Vec<f64>,
+    /// Headerless stream with a timestamp column: its index and the placement on the grid.
+    timing: Option<(usize, headerless::Timing)>,
+    /// Decoded items held back behind a gap found in the middle of a read.
+    backlog: std::collections::VecDeque<Decoded>,
 }
 
 impl SerialSource {
@@ -117,6 +125,9 @@ impl SerialSource {
         }
         let info = info_from(name, &header);
         crate::run::validate::check_stream(&info, &format!("the stream header of '{name}'"))?;
+        let base_scales = (0..info_channels(&header))
+            .map(|i| header.scale(i))
+            .collect();
         Ok(SerialSource {
             name: name.to_string(),
             link,
@@ -131,7 +142,167 @@ impl SerialSource {
             last_data: Instant::now(),
             buf,
             deferred: None,
+            base_scales,
+            timing: None,
+            backlog: Default::default(),
         })
+    }
+
+    /// Open a port whose device sends bare numbers and no header (see `headerless`).
+    pub fn open_headerless(
+        path: &str,
+        baud: u32,
+        rate_hz: Option<f64>,
+        columns: &headerless::Columns,
+    ) -> Result<Self> {
+        let port = serialport::new(path, baud)
+            .timeout(Duration::from_millis(50))
+            .open()
+            .map_err(|e| {
+                Error::new(format!(
+                    "cannot open serial port '{path}': {}",
+                    port_error(&e)
+                ))
+            })?;
+        Self::headerless_from_link(path, Box::new(PortLink(port)), rate_hz, columns)
+    }
+
+    /// A headerless stream on any byte link. With a timestamp column the first 512 samples
+    /// measure the rate (unless `rate_hz` is given, which then sets the grid and the
+    /// measurement is only reported); without one `rate_hz` is needed and trusted.
+    pub fn headerless_from_link(
+        name: &str,
+        mut link: Box<dyn ByteLink>,
+        rate_hz: Option<f64>,
+        columns: &headerless::Columns,
+    ) -> Result<Self> {
+        if columns.time.is_none() && rate_hz.is_none() {
+            crate::fail!(
+                "a stream without a header needs --rate HZ, or a timestamp column in --columns (e.g. t@us,force,accel)"
+            );
+        }
+        // The same wake-up as for devices with a header: a sketch that prints bare numbers
+        // ignores it; one that speaks our protocol starts streaming.
+        let _ = link.send(b"h");
+        let names: Vec<&str> = columns.names.iter().map(String::as_str).collect();
+        let mut decoder = Decoder::headerless(StreamHeader::new(rate_hz.unwrap_or(1.0), &names));
+        let mut buf = vec![0u8; 4096];
+        let mut frames = Vec::new();
+        let mut out = Vec::new();
+        let wanted = if columns.time.is_some() { 512 } else { 1 };
+        let t0 = Instant::now();
+        while frames.len() < wanted {
+            if t0.elapsed() > HEADER_TIMEOUT {
+                let s = decoder.stats();
+                crate::fail!(
+                    "'{name}' sent {} usable lines of {} columns within {} s ({} bytes, {} lines unusable): check --columns against what the sketch prints",
+                    frames.len(),
+                    columns.names.len(),
+                    HEADER_TIMEOUT.as_secs(),
+                    s.bytes,
+                    s.junk_lines
+                );
+            }
+            let n = link.read_some(&mut buf).map_err(|e| {
+                Error::new(format!(
+                    "cannot read serial port '{name}': {}",
+                    crate::error::describe_io(&e)
+                ))
+            })?;
+            decoder.push(&buf[..n], &mut out);
+            frames.extend(out.drain(..).filter_map(|d| match d {
+                Decoded::Frame(f) => Some(f),
+                Decoded::Header(_) => None,
+            }));
+            if n == 0 {
+                std::thread::sleep(Duration::from_millis(5));
+            }
+        }
+        let measured = columns.time.and_then(|(i, tick)| {
+            let raw: Vec<f64> = frames.iter().map(|f| f[i]).collect();
+            headerless::measure_period(&raw, tick).map(|p| 1.0 / p)
+        });
+        let rate = match (rate_hz, measured, columns.time) {
+            (Some(r), _, _) => r,
+            (None, Some(m), _) => m,
+            (None, None, _) => crate::fail!(
+                "the timestamps of '{name}' do not increase: cannot measure the rate; give --rate HZ"
+            ),
+        };
+        let data_names = columns.data_names();
+        let info = StreamInfo {
+            source: format!(
+                "serial {name} (no header; {})",
+                match (measured, rate_hz) {
+                    (Some(m), Some(r)) => format!("rate {r} Hz as given, {m:.2} Hz measured"),
+                    (Some(m), None) => format!("rate {m:.2} Hz measured from the timestamps"),
+                    (None, _) => format!("rate {rate} Hz as given, not measured"),
+                }
+            ),
+            sample_rate: rate,
+            channels: data_names
+                .iter()
+                .map(|n| ChannelInfo {
+                    name: n.clone(),
+                    role: Role::Unused,
+                    unit: "counts".into(),
+                    scale: 1.0,
+                    full_scale: None,
+                })
+                .collect(),
+        };
+        crate::run::validate::check_stream(&info, &format!("the columns of '{name}'"))?;
+        let header = StreamHeader::new(rate, &names);
+        let mut src = SerialSource {
+            name: name.to_string(),
+            link,
+            block_len: (rate / 50.0).ceil().max(1.0) as usize,
+            decoder,
+            base_scales: vec![1.0; data_names.len()],
+            header,
+            info,
+            pending: Vec::new(),
+            position: 0,
+            carry: Vec::new(),
+            gap: 0,
+            last_data: Instant::now(),
+            buf,
+            deferred: None,
+            timing: columns
+                .time
+                .map(|(i, tick)| (i, headerless::Timing::new(tick, 1.0 / rate))),
+            backlog: frames.into_iter().map(Decoded::Frame).collect(),
+        };
+        if src.timing.is_none() {
+            // Without timestamps the frames go straight in.
+            src.pending = src
+                .backlog
+                .drain(..)
+                .filter_map(|d| match d {
+                    Decoded::Frame(f) => Some(f),
+                    Decoded::Header(_) => None,
+                })
+                .collect();
+        }
+        Ok(src)
+    }
+
+    /// Rate, jitter and missing samples of a timestamped headerless stream.
+    pub fn timing_report(&self) -> Option<String> {
+        self.timing.as_ref().map(|(_, t)| t.describe())
+    }
+
+    /// A timestamped frame placed on the grid: the data values, and how many samples are
+    /// missing before it; `None` for a stale frame (dropped).
+    fn place(&mut self, mut f: Vec<f64>) -> Option<(Vec<f64>, u64)> {
+        let Some((i, timing)) = self.timing.as_mut() else {
+            return Some((f, 0));
+        };
+        let raw = f.remove(*i);
+        match timing.place(raw) {
+            headerless::Placed::Next { missing } => Some((f, missing)),
+            headerless::Placed::Stale => None,
+        }
     }
 
     /// Channel layout, for applying calibration from the command line.
@@ -153,6 +324,10 @@ fn port_error(e: &serialport::Error) -> String {
         }
         _ => e.to_string(),
     }
+}
+
+fn info_channels(h: &StreamHeader) -> usize {
+    h.channels.len()
 }
 
 fn info_from(name: &str, h: &StreamHeader) -> StreamInfo {
@@ -193,7 +368,27 @@ impl Source for SerialSource {
         }
         let started = Instant::now();
         let mut out = Vec::new();
-        while self.pending.len() < self.block_len && started.elapsed() < Duration::from_millis(40) {
+        // Frames held back behind a gap in the previous block (or read while measuring the
+        // rate) come first.
+        let mut cut = false;
+        while let Some(d) = self.backlog.pop_front() {
+            if let Decoded::Frame(f) = d
+                && let Some((f, missing)) = self.place(f)
+            {
+                if missing > 0 && !self.pending.is_empty() {
+                    self.carry = vec![f];
+                    self.gap = missing;
+                    cut = true;
+                    break;
+                }
+                self.position += missing;
+                self.pending.push(f);
+            }
+        }
+        while !cut
+            && self.pending.len() < self.block_len
+            && started.elapsed() < Duration::from_millis(40)
+        {
             let n = match self.link.read_some(&mut self.buf) {
                 Ok(n) => n,
                 Err(e) => {
@@ -226,7 +421,8 @@ impl Source for SerialSource {
             self.decoder.push(&self.buf[..n], &mut out);
             let lost = self.decoder.frames_lost() - lost_before;
             let before_gap = self.pending.len();
-            for d in out.drain(..) {
+            let mut items = std::mem::take(&mut out).into_iter();
+            while let Some(d) = items.next() {
                 match d {
                     Decoded::Header(h) => {
                         if h.scales != self.header.scales || h.units != self.header.units {
@@ -253,8 +449,30 @@ impl Source for SerialSource {
                             );
                         }
                     }
-                    Decoded::Frame(f) => self.pending.push(f),
+                    Decoded::Frame(f) => {
+                        if self.timing.is_none() {
+                            self.pending.push(f);
+                            continue;
+                        }
+                        let Some((f, missing)) = self.place(f) else {
+                            continue;
+                        };
+                        if missing > 0 && !self.pending.is_empty() {
+                            // Samples missing by their timestamps: close the block here,
+                            // the rest of this read waits behind the gap.
+                            self.carry = vec![f];
+                            self.gap = missing;
+                            self.backlog.extend(items.by_ref());
+                            cut = true;
+                            break;
+                        }
+                        self.position += missing;
+                        self.pending.push(f);
+                    }
                 }
+            }
+            if cut {
+                break;
             }
             if lost > 0 {
                 // Frames known lost: close the block before the gap and carry what came
@@ -265,10 +483,14 @@ impl Source for SerialSource {
             }
         }
         let n_ch = self.info.channels.len();
+        // A calibration given on the command line after opening scales the values too.
+        let factors: Vec<f64> = (0..n_ch)
+            .map(|c| self.info.channels[c].scale / self.base_scales.get(c).copied().unwrap_or(1.0))
+            .collect();
         let mut channels = vec![Vec::with_capacity(self.pending.len()); n_ch];
         for f in self.pending.drain(..) {
             for (c, v) in f.into_iter().enumerate().take(n_ch) {
-                channels[c].push(v);
+                channels[c].push(if factors[c] == 1.0 { v } else { v * factors[c] });
             }
         }
         let len = channels.first().map_or(0, Vec::len) as u64;
