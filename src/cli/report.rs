@@ -3,23 +3,30 @@
 use crate::modes::Mode;
 use crate::pipeline::HitSummary;
 
-/// The mode table: frequency, damping in percent, Q, coherence and flags.
+/// The mode table (at most 80 columns before the flags), with units in the headers and a
+/// legend of every abbreviation under it.
 pub fn mode_table(modes: &[Mode]) -> String {
     let mut s = format!(
-        "{:>3} {:>10} {:>9} {:>7} {:>6} {:>7} {:>16}  {}\n",
-        "#", "f Hz", "damping %", "Q", "coh", "prom dB", "95% f / z", "flags"
+        "{:>3} {:>9} {:>7} {:>6} {:>5} {:>6} {:>7} {:>7} {:<8} {}\n",
+        "#", "f Hz", "damp %", "Q", "coh", "prom", "+-f Hz", "+-d pt", "from", "flags"
     );
     for (i, m) in modes.iter().enumerate() {
         let flags: Vec<&str> = m.flags.iter().map(|f| f.label()).collect();
-        let ci = m.uncertainty.as_ref().map_or("-".to_string(), |u| {
-            let hw = 0.5 * (u.frequency_hz.high - u.frequency_hz.low);
-            let zw = u.damping_ratio.as_ref().map_or("-".to_string(), |z| {
-                format!("{:.2}", 50.0 * (z.high - z.low))
-            });
-            format!("+-{hw:.2} / +-{zw}")
+        let u = m.uncertainty.as_ref();
+        let f_ci = u.map_or("-".to_string(), |u| {
+            format!("{:.2}", 0.5 * (u.frequency_hz.high - u.frequency_hz.low))
         });
+        let z_ci = u
+            .and_then(|u| u.damping_ratio.as_ref())
+            .map_or("-".to_string(), |z| format!("{:.2}", 50.0 * (z.high - z.low)));
+        let from = match m.method.as_str() {
+            "fit" => "band fit",
+            "spectrum_fit" => "spectrum",
+            "half_power" => "half-pwr",
+            other => other,
+        };
         s += &format!(
-            "{:>3} {:>10.2} {:>9} {:>7} {:>6} {:>7.1} {:>16}  {}\n",
+            "{:>3} {:>9.2} {:>7} {:>6} {:>5} {:>6.1} {:>7} {:>7} {:<8} {}\n",
             i + 1,
             m.frequency_hz,
             m.damping_ratio
@@ -27,9 +34,18 @@ pub fn mode_table(modes: &[Mode]) -> String {
             m.q.map_or("-".into(), |q| format!("{q:.1}")),
             m.coherence.map_or("-".into(), |c| format!("{c:.3}")),
             m.prominence_db,
-            ci,
+            f_ci,
+            z_ci,
+            from,
             flags.join(", ")
         );
+    }
+    if !modes.is_empty() {
+        s += "    damp: damping ratio; Q = 1 / (2 damp); coh: coherence at the peak (- with one\n";
+        s += "    hit); prom: dB the peak stands above its surroundings; +-f, +-d: half-widths of\n";
+        s += "    the 95 % intervals from the hit-to-hit spread (damping in percentage points);\n";
+        s += "    from: band fit (several modes fitted together), spectrum (fit of the response\n";
+        s += "    spectrum) or half-pwr (peak and half-power band).\n";
     }
     s
 }
