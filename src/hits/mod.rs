@@ -728,18 +728,23 @@ mod tests {
     use crate::source::simulator::Simulator;
     use crate::source::simulator::presets::preset;
 
+    /// The default trigger settings on `channel`.
+    fn trigger_on(channel: usize) -> TriggerConfig {
+        TriggerConfig {
+            channel,
+            level: TriggerLevel::NoiseMultiple(10.0),
+            pretrigger_s: 0.01,
+            record_s: 1.0,
+            holdoff_s: 0.2,
+        }
+    }
+
     /// All hits of a simulated run with the default trigger on the force (or response).
     fn detect(plan: crate::source::simulator::BenchPlan, seconds: f64) -> Vec<Hit> {
         let mut sim = Simulator::new(plan, Some(seconds), true);
         let info = sim.info().clone();
         let roles = RoleChoice::default().resolve(&info).unwrap();
-        let trig = TriggerConfig {
-            channel: roles.force.unwrap_or(roles.response),
-            level: TriggerLevel::NoiseMultiple(10.0),
-            pretrigger_s: 0.01,
-            record_s: 1.0,
-            holdoff_s: 0.2,
-        };
+        let trig = trigger_on(roles.force.unwrap_or(roles.response));
         let mut d = HitDetector::new(&info, roles, trig, CheckConfig::default());
         let mut hits = Vec::new();
         while let Some(b) = sim.next_block().unwrap() {
@@ -844,13 +849,7 @@ mod tests {
             response: 0,
             base: None,
         };
-        let trig = TriggerConfig {
-            channel: 0,
-            level: TriggerLevel::NoiseMultiple(10.0),
-            pretrigger_s: 0.01,
-            record_s: 1.0,
-            holdoff_s: 0.2,
-        };
+        let trig = trigger_on(0);
         let mut d = HitDetector::new(&info, roles, trig, CheckConfig::default());
         let mut hits = Vec::new();
         // Odd block sizes: the outcome must not depend on them.

@@ -66,16 +66,7 @@ pub struct SerialSource {
 impl SerialSource {
     /// Open `path` at `baud` and wait for the stream header.
     pub fn open(path: &str, baud: u32) -> Result<Self> {
-        let port = serialport::new(path, baud)
-            .timeout(Duration::from_millis(50))
-            .open()
-            .map_err(|e| {
-                Error::new(format!(
-                    "cannot open serial port '{path}': {}",
-                    port_error(&e)
-                ))
-            })?;
-        Self::from_link(path, Box::new(PortLink(port)))
+        Self::from_link(path, open_port(path, baud)?)
     }
 
     /// Start on any byte link (used by tests with pipes and pseudo-terminals).
@@ -155,16 +146,7 @@ impl SerialSource {
         rate_hz: Option<f64>,
         columns: &headerless::Columns,
     ) -> Result<Self> {
-        let port = serialport::new(path, baud)
-            .timeout(Duration::from_millis(50))
-            .open()
-            .map_err(|e| {
-                Error::new(format!(
-                    "cannot open serial port '{path}': {}",
-                    port_error(&e)
-                ))
-            })?;
-        Self::headerless_from_link(path, Box::new(PortLink(port)), rate_hz, columns)
+        Self::headerless_from_link(path, open_port(path, baud)?, rate_hz, columns)
     }
 
     /// A headerless stream on any byte link. With a timestamp column the first 512 samples
@@ -313,6 +295,20 @@ impl SerialSource {
     pub fn stats(&self) -> codec::LinkStats {
         self.decoder.stats()
     }
+}
+
+/// The port at `path`, with a short read timeout so the source can poll.
+fn open_port(path: &str, baud: u32) -> Result<Box<dyn ByteLink>> {
+    let port = serialport::new(path, baud)
+        .timeout(Duration::from_millis(50))
+        .open()
+        .map_err(|e| {
+            Error::new(format!(
+                "cannot open serial port '{path}': {}",
+                port_error(&e)
+            ))
+        })?;
+    Ok(Box::new(PortLink(port)))
 }
 
 fn port_error(e: &serialport::Error) -> String {
