@@ -129,6 +129,33 @@ fn text_form_clean_stream() {
         modes.iter().any(|f| (f / 148.0 - 1.0).abs() < 0.005),
         "{modes:?}\n{stdout}"
     );
+    // The run re-analysed from its recording: the serial values are calibrated (g, N), so
+    // the recording must carry its own scale and full scale; read as a plain float WAV
+    // every hit would be an overload.
+    let again = dir.join("again.json");
+    let (code, _, stderr) = tapmodes(&[
+        "analyze",
+        dir.join("bench.json").to_str().unwrap(),
+        "--out",
+        again.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{stderr}");
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&again).unwrap()).unwrap();
+    assert_eq!(v["hits_accepted"].as_u64(), Some(5), "{v}");
+    let first = accepted_modes(&dir).1;
+    let redone: Vec<f64> = v["modes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|m| m["frequency_hz"].as_f64().unwrap())
+        .collect();
+    // The recording keeps 32-bit floats of the calibrated values (a serial header gives no
+    // converter width), so the re-analysis agrees to float precision, not bit for bit.
+    assert_eq!(first.len(), redone.len(), "{first:?} vs {redone:?}");
+    for (a, b) in first.iter().zip(&redone) {
+        assert!((a - b).abs() < 1e-5 * a, "{first:?} vs {redone:?}");
+    }
 }
 
 #[test]

@@ -253,3 +253,50 @@ pub fn write_counts_wav(path: &Path, fs: f64, bits: u16, channels: &[Vec<i32>]) 
     }
     super::atomic::write_atomic(path, &cursor.into_inner())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::signal::{ChannelInfo, Role};
+
+    #[test]
+    fn the_size_limit_stops_the_recording_with_a_valid_file() {
+        // The limit is tested lowered (the real one, just under 4 GiB, would take minutes to
+        // reach): the block that would cross it is refused with one sentence, and what was
+        // written before stays a complete WAV.
+        let dir = std::env::temp_dir().join(format!("tapmodes-rec-limit-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&dir);
+        std::fs::create_dir_all(&dir).unwrap();
+        let info = StreamInfo {
+            source: "test".into(),
+            sample_rate: 1000.0,
+            channels: vec![ChannelInfo {
+                name: "a".into(),
+                role: Role::Response,
+                unit: "g".into(),
+                scale: 1.0 / 2048.0,
+                full_scale: Some(16.0),
+            }],
+        };
+        let path = dir.join("limit.wav");
+        let mut rec = RecordingWriter::create(&path, &info)
+            .unwrap()
+            .with_limit_bytes(44 + 2 * 2500);
+        let block = |start: u64| Block {
+            start,
+            channels: vec![(0..1000).map(|k| (k as f64 / 2048.0).sin()).collect()],
+        };
+        rec.append(&block(0)).unwrap();
+        rec.append(&block(1000)).unwrap();
+        let err = rec.append(&block(2000)).unwrap_err().to_string();
+        assert!(
+            err.contains("size limit") && err.contains("start a new run"),
+            "{err}"
+        );
+        assert_eq!(rec.frames(), 2000);
+        rec.finish().unwrap();
+        let wav = hound::WavReader::open(&path).expect("a valid WAV up to the limit");
+        assert_eq!(wav.duration(), 2000);
+        let _ = std::fs::remove_dir_all(&dir);
+    }
+}
