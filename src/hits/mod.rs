@@ -185,15 +185,14 @@ impl Floor {
 
 /// The smallest noise floor the trigger assumes for a channel: the quantisation noise of a
 /// 16-bit converter at the channel's full scale (q / sqrt(12) with q = full scale / 2^15,
-/// about -101 dBFS), or of one count when the full scale is unknown. After a stretch of
-/// digital silence (exact zeros) the measured floor is zero and a trigger at a multiple of
-/// it would fire on anything; with this bound it fires on taps only.
+/// about -101 dBFS), none when the full scale is unknown (a float stream says nothing about
+/// its resolution). Stretches of digital silence (exact zeros) are also left out of the
+/// measured floor (see `Floor::add`), so the trigger recovers after them.
 pub fn noise_lower_bound(channel: &crate::signal::ChannelInfo) -> f64 {
-    let q = match channel.full_scale {
-        Some(fs) if fs > 0.0 && fs.is_finite() => fs / 32768.0,
-        _ => channel.scale.abs(),
-    };
-    q / 12f64.sqrt()
+    match channel.full_scale {
+        Some(fs) if fs > 0.0 && fs.is_finite() => fs / 32768.0 / 12f64.sqrt(),
+        _ => 0.0,
+    }
 }
 
 fn median(values: impl Iterator<Item = f64>) -> f64 {
