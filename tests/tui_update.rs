@@ -257,7 +257,7 @@ fn save_writes_wav_json_and_csv() {
     // The simulated bench has 16-bit converters: the codes are stored, as the run file says.
     assert_eq!(wav.spec().sample_format, hound::SampleFormat::Int);
     assert_eq!(wav.spec().bits_per_sample, 16);
-    assert_eq!(rec.encoding, tapmodes::run::recording::COUNTS16_ENCODING);
+    assert_eq!(rec.encoding, tapmodes::run::recording::Encoding::Counts16);
     assert_eq!(wav.duration() as u64, rec.frames);
     assert_eq!(rec.frames, 52_000, "6.5 s at 8 kHz");
     let curve = tapmodes::run::curve_read::read_curve_csv(&dir.join("tm9-arm-solid.csv")).unwrap();

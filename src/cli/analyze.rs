@@ -87,7 +87,7 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
     let label = a.variant.as_ref().map(|v| validate::clean_text(v, false));
     let cli_note = validate::clean_text(&a.note, true);
     let (analysis, wav, mut variant) = if is_json {
-        let (analysis, wav, saved) = reanalyse(&a.input)?;
+        let (analysis, wav, saved) = crate::run::reopen::reanalyse(&a.input)?;
         check_outputs(&out, &[&a.input, &wav])?;
         (analysis, wav, saved)
     } else {
@@ -213,68 +213,6 @@ fn isolation(analysis: &Analysis, band: (f64, f64)) -> Result<crate::run::Isolat
     })
 }
 
-/// Re-run a saved run: same recording, same settings, same operator verdicts. The run
-/// file is checked like command-line settings, its recording must lie in its folder and
-/// match it (channels, rate, length), and the recording's own calibration and full scale
-/// are taken from the run, so re-analysis reproduces the capture.
-fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
-    let saved = RunFile::load(json)?;
-    let shown = json.display();
-    let wav = saved.wav_path(json).ok_or_else(|| {
-        crate::error::Error::new(format!("'{shown}' does not name a recording"))
-    })??;
-    let mut src = WavSource::open(&wav)?;
-    let s = &saved.setup;
-    let (n_run, n_wav) = (s.channels.len(), src.info().channels.len());
-    if n_run != n_wav {
-        crate::fail!(
-            "'{}' has {n_wav} channels but the run '{shown}' was made with {n_run}: it is not this run's recording",
-            wav.display()
-        );
-    }
-    if (src.info().sample_rate - s.sample_rate_hz.round()).abs() > 0.5 {
-        crate::fail!(
-            "'{}' is sampled at {} Hz but the run '{shown}' at {} Hz: it is not this run's recording",
-            wav.display(),
-            src.info().sample_rate,
-            s.sample_rate_hz
-        );
-    }
-    let rec = saved.recording.as_ref();
-    let counts = rec.is_some_and(|r| r.encoding.starts_with("counts"));
-    for (i, c) in s.channels.iter().enumerate() {
-        src.calibrate(i, &c.unit, if counts { c.scale } else { 1.0 });
-        src.set_full_scale(i, c.full_scale);
-        src.set_channel(i, &c.name, c.role);
-    }
-    if let Some(r) = rec {
-        let lost: u64 = r.gaps.iter().map(|g| g.1).sum();
-        let needed = r.frames - lost;
-        if src.frames() < needed {
-            crate::fail!(
-                "'{}' holds {} frames but the run '{shown}' covers {needed}: the recording is shorter than its run",
-                wav.display(),
-                src.frames()
-            );
-        }
-        if src.frames() > needed {
-            eprintln!(
-                "note: '{}' goes on {} frames past the run (a capture that ended without its last save); analysing the first {needed} as the run did",
-                wav.display(),
-                src.frames() - needed
-            );
-            src.limit_frames(needed);
-        }
-        src.skip_gaps(&r.gaps);
-    }
-    let cfg = saved.analysis_config();
-    let mut analysis = Analysis::new(&src.info().clone(), s.roles, cfg, true)?;
-    analysis.set_disarmed(saved.disarmed.clone());
-    let mut analysis = crate::pipeline::drain_into(&mut src, analysis)?;
-    analysis.apply_verdicts(&saved.hits);
-    Ok((analysis, wav, saved.variant))
-}
-
 fn finish(
     analysis: &Analysis,
     variant: Variant,
@@ -292,9 +230,9 @@ fn finish(
         );
     }
     let encoding = if analysis.info().channels.iter().all(|c| c.scale == 1.0) {
-        "as stored"
+        crate::run::recording::Encoding::AsStored
     } else {
-        "counts"
+        crate::run::recording::Encoding::Counts
     };
     let iso = isolation_band.map(|b| isolation(analysis, b)).transpose()?;
     let note = crate::run::RecordingNote {

@@ -102,6 +102,11 @@ pub fn run(launch: Launch) -> Result<()> {
         app::drive(&mut app, &mut terminal, &rx, |_, _| false)
     };
     app.shutdown();
+    // The screen is gone at once; files still being written are finished before exit.
+    if app.finishing() {
+        eprintln!("tapmodes: finishing the analysis and the run files...");
+    }
+    app.wait_for_files();
     result
 }
 
