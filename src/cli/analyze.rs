@@ -19,24 +19,24 @@ pub struct AnalyzeArgs {
     pub input: PathBuf,
     /// Where to write the mode list (JSON); the FRF CSV goes beside it with the same stem
     /// [default: NAME.modes.json beside a WAV, NAME.again.json beside a run file].
-    #[arg(long, short, value_name = "OUT.json")]
+    #[arg(long, short, value_name = "OUT.json", help_heading = "Outputs")]
     pub out: Option<PathBuf>,
     /// Variant label stored in the mode list [default: the input's file stem].
-    #[arg(long, value_name = "LABEL")]
+    #[arg(long, value_name = "LABEL", help_heading = "Outputs")]
     pub variant: Option<String>,
     /// Free-text note stored with the variant.
-    #[arg(long, default_value = "", value_name = "TEXT")]
+    #[arg(long, default_value = "", value_name = "TEXT", help_heading = "Outputs")]
     pub note: String,
     /// Mass of the part as tested, in grams: stored with the variant for the mass-corrected
     /// stiffness ratio of `compare` (re-analysing a run file keeps its mass unless given).
-    #[arg(long, value_name = "GRAMS", value_parser = super::args::parse_mass)]
+    #[arg(long, value_name = "GRAMS", value_parser = super::args::parse_mass, help_heading = "Outputs")]
     pub mass: Option<f64>,
     /// Also print every hit with its verdict.
-    #[arg(long)]
+    #[arg(long, help_heading = "Outputs")]
     pub hits: bool,
     /// With a base channel: the mount's transmissibility in dB at HZ or over LO:HI (the
     /// motors' excitation band, say), measured and from the fitted mount model.
-    #[arg(long, value_name = "HZ|LO:HI", value_parser = parse_freq_or_band)]
+    #[arg(long, value_name = "HZ|LO:HI", value_parser = super::args::parse_freq_or_band, help_heading = "Outputs")]
     pub isolation: Option<(f64, f64)>,
     #[command(flatten)]
     pub channels: ChannelArgs,
@@ -166,25 +166,6 @@ fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
-fn parse_freq_or_band(s: &str) -> std::result::Result<(f64, f64), String> {
-    let num = |t: &str| {
-        t.trim()
-            .parse::<f64>()
-            .ok()
-            .filter(|v| v.is_finite() && *v > 0.0)
-            .ok_or_else(|| format!("'{t}' is not a frequency in Hz"))
-    };
-    match s.split_once(':') {
-        Some((a, b)) => {
-            let (lo, hi) = (num(a)?, num(b)?);
-            if lo >= hi {
-                return Err(format!("the band {s} is empty (LO must be below HI)"));
-            }
-            Ok((lo, hi))
-        }
-        None => num(s).map(|f| (f, f)),
-    }
-}
 
 /// Measured and modelled transmissibility at a frequency or over a band.
 fn isolation(analysis: &Analysis, band: (f64, f64)) -> Result<crate::run::Isolation> {

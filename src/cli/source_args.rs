@@ -13,28 +13,28 @@ use std::path::PathBuf;
 #[derive(Debug, Clone, Args)]
 pub struct SourceArgs {
     /// Serial port of an accelerometer streamer (protocol: firmware-notes/protocol.md).
-    #[arg(long, value_name = "PATH", group = "src")]
+    #[arg(long, value_name = "PATH", group = "src", help_heading = "Source")]
     pub serial: Option<String>,
     /// Baud rate for --serial (native USB ports ignore it).
-    #[arg(long, default_value_t = 921_600, value_name = "N")]
+    #[arg(long, default_value_t = 921_600, value_name = "N", help_heading = "Source")]
     pub baud: u32,
     /// Sound-card input (optionally its name; see `tapmodes devices`). Needs the audio feature.
-    #[arg(long, value_name = "NAME", num_args = 0..=1, default_missing_value = "", group = "src")]
+    #[arg(long, value_name = "NAME", num_args = 0..=1, default_missing_value = "", group = "src", help_heading = "Source")]
     pub audio: Option<String>,
     /// Sample rate to ask of the sound card, Hz.
-    #[arg(long, default_value_t = 48_000, value_name = "HZ")]
+    #[arg(long, default_value_t = 48_000, value_name = "HZ", help_heading = "Source")]
     pub audio_rate: u32,
     /// Replay a WAV recording as if it were live.
-    #[arg(long, value_name = "FILE.wav", group = "src")]
+    #[arg(long, value_name = "FILE.wav", group = "src", help_heading = "Source")]
     pub replay: Option<PathBuf>,
     /// The simulated bench (optionally a preset; see `tapmodes simulate --list`).
-    #[arg(long, value_name = "PRESET", num_args = 0..=1, default_missing_value = "tm9-arm-solid", group = "src")]
+    #[arg(long, value_name = "PRESET", num_args = 0..=1, default_missing_value = "tm9-arm-solid", group = "src", help_heading = "Source")]
     pub demo: Option<String>,
     /// Seed of the simulated bench.
-    #[arg(long, default_value_t = 1, value_name = "N")]
+    #[arg(long, default_value_t = 1, value_name = "N", help_heading = "Source")]
     pub seed: u64,
     /// Replay and simulate as fast as possible instead of in real time.
-    #[arg(long)]
+    #[arg(long, help_heading = "Source")]
     pub fast: bool,
 }
 
