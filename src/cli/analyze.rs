@@ -17,6 +17,10 @@ pub struct AnalyzeArgs {
     /// stored settings and operator verdicts.
     #[arg(value_name = "INPUT")]
     pub input: PathBuf,
+    #[command(flatten)]
+    pub channels: ChannelArgs,
+    #[command(flatten)]
+    pub analysis: AnalysisArgs,
     /// Where to write the mode list (JSON); the FRF CSV goes beside it with the same stem
     /// [default: NAME.modes.json beside a WAV, NAME.again.json beside a run file].
     #[arg(long, short, value_name = "OUT.json", help_heading = "Outputs")]
@@ -25,7 +29,12 @@ pub struct AnalyzeArgs {
     #[arg(long, value_name = "LABEL", help_heading = "Outputs")]
     pub variant: Option<String>,
     /// Free-text note stored with the variant.
-    #[arg(long, default_value = "", value_name = "TEXT", help_heading = "Outputs")]
+    #[arg(
+        long,
+        default_value = "",
+        value_name = "TEXT",
+        help_heading = "Outputs"
+    )]
     pub note: String,
     /// Mass of the part as tested, in grams: stored with the variant for the mass-corrected
     /// stiffness ratio of `compare` (re-analysing a run file keeps its mass unless given).
@@ -38,10 +47,6 @@ pub struct AnalyzeArgs {
     /// motors' excitation band, say), measured and from the fitted mount model.
     #[arg(long, value_name = "HZ|LO:HI", value_parser = super::args::parse_freq_or_band, help_heading = "Outputs")]
     pub isolation: Option<(f64, f64)>,
-    #[command(flatten)]
-    pub channels: ChannelArgs,
-    #[command(flatten)]
-    pub analysis: AnalysisArgs,
 }
 
 /// Open a WAV with the channel options applied (scales, units, names).
@@ -165,7 +170,6 @@ fn same_file(a: &Path, b: &Path) -> bool {
         _ => false,
     }
 }
-
 
 /// Measured and modelled transmissibility at a frequency or over a band.
 fn isolation(analysis: &Analysis, band: (f64, f64)) -> Result<crate::run::Isolation> {

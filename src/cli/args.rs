@@ -60,14 +60,16 @@ impl ChannelArgs {
 
 #[derive(Debug, Clone, Args)]
 pub struct AnalysisArgs {
-    /// Limit the mode search to LO:HI Hz (either side may be empty, e.g. 50: or :1200).
-    #[arg(long, value_name = "LO:HI", value_parser = parse_band, help_heading = "Modes")]
-    pub band: Option<(f64, f64)>,
     /// Channel the trigger watches [default: the force channel, else the response].
     #[arg(long, value_name = "N", help_heading = "Trigger")]
     pub trigger_channel: Option<usize>,
     /// Trigger when the channel deviates from its baseline by this much (channel unit).
-    #[arg(long, value_name = "X", conflicts_with = "trigger_noise", help_heading = "Trigger")]
+    #[arg(
+        long,
+        value_name = "X",
+        conflicts_with = "trigger_noise",
+        help_heading = "Trigger"
+    )]
     pub trigger_level: Option<f64>,
     /// Trigger at this multiple of the measured noise floor (RMS) [default: 10].
     #[arg(long, value_name = "K", help_heading = "Trigger")]
@@ -102,6 +104,9 @@ pub struct AnalysisArgs {
     /// Curve the modes are read from [default: frf with a force channel, else spectrum].
     #[arg(long, value_enum, help_heading = "Spectra")]
     pub view: Option<ViewArg>,
+    /// Limit the mode search to LO:HI Hz (either side may be empty, e.g. 50: or :1200).
+    #[arg(long, value_name = "LO:HI", value_parser = parse_band, help_heading = "Modes")]
+    pub band: Option<(f64, f64)>,
     /// Smallest peak prominence, dB [default: 3 on an FRF or transmissibility with two or
     /// more averages (the coherence vouches for the peak), else 6].
     #[arg(long, value_name = "DB", help_heading = "Modes")]
@@ -323,7 +328,10 @@ mod tests {
         let compare = root.find_subcommand("compare").unwrap();
         use crate::run::compare::{DEFAULT_FLOOR_DAMPING_PCT, DEFAULT_FLOOR_FREQUENCY_PCT};
         assert_eq!(documented(compare, "floor"), DEFAULT_FLOOR_FREQUENCY_PCT);
-        assert_eq!(documented(compare, "floor-damping"), DEFAULT_FLOOR_DAMPING_PCT);
+        assert_eq!(
+            documented(compare, "floor-damping"),
+            DEFAULT_FLOOR_DAMPING_PCT
+        );
     }
 
     #[test]

@@ -78,7 +78,6 @@ pub fn parse_rule(s: &str) -> std::result::Result<PairRule, String> {
     })
 }
 
-
 fn percent(v: f64, what: &str, max: f64) -> Result<f64> {
     if v.is_finite() && v >= 0.0 && v <= max {
         Ok(v)

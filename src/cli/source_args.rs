@@ -16,13 +16,23 @@ pub struct SourceArgs {
     #[arg(long, value_name = "PATH", group = "src", help_heading = "Source")]
     pub serial: Option<String>,
     /// Baud rate for --serial (native USB ports ignore it).
-    #[arg(long, default_value_t = 921_600, value_name = "N", help_heading = "Source")]
+    #[arg(
+        long,
+        default_value_t = 921_600,
+        value_name = "N",
+        help_heading = "Source"
+    )]
     pub baud: u32,
     /// Sound-card input (optionally its name; see `tapmodes devices`). Needs the audio feature.
     #[arg(long, value_name = "NAME", num_args = 0..=1, default_missing_value = "", group = "src", help_heading = "Source")]
     pub audio: Option<String>,
     /// Sample rate to ask of the sound card, Hz.
-    #[arg(long, default_value_t = 48_000, value_name = "HZ", help_heading = "Source")]
+    #[arg(
+        long,
+        default_value_t = 48_000,
+        value_name = "HZ",
+        help_heading = "Source"
+    )]
     pub audio_rate: u32,
     /// Replay a WAV recording as if it were live.
     #[arg(long, value_name = "FILE.wav", group = "src", help_heading = "Source")]

@@ -10,11 +10,25 @@ use std::path::PathBuf;
 pub struct TuiArgs {
     #[command(flatten)]
     pub source: SourceArgs,
+    #[command(flatten)]
+    pub channels: ChannelArgs,
+    #[command(flatten)]
+    pub analysis: AnalysisArgs,
     /// Folder the run files are saved in (created if missing).
-    #[arg(long, default_value = "runs", value_name = "DIR", help_heading = "Outputs")]
+    #[arg(
+        long,
+        default_value = "runs",
+        value_name = "DIR",
+        help_heading = "Outputs"
+    )]
     pub out: PathBuf,
     /// Variant label to start with (names the saved files).
-    #[arg(long, default_value = "variant", value_name = "LABEL", help_heading = "Outputs")]
+    #[arg(
+        long,
+        default_value = "variant",
+        value_name = "LABEL",
+        help_heading = "Outputs"
+    )]
     pub variant: String,
     /// Simulated bench only: fire a tap every SECONDS (toggle in the app).
     #[arg(long, value_name = "SECONDS", help_heading = "Source")]
@@ -22,10 +36,6 @@ pub struct TuiArgs {
     /// Saved runs to overlay and compare with from the start.
     #[arg(long, value_name = "RUN.json", help_heading = "Outputs")]
     pub compare: Vec<PathBuf>,
-    #[command(flatten)]
-    pub channels: ChannelArgs,
-    #[command(flatten)]
-    pub analysis: AnalysisArgs,
 }
 
 pub fn run(a: &TuiArgs) -> Result<()> {

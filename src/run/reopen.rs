@@ -15,9 +15,9 @@ use std::path::{Path, PathBuf};
 pub fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
     let saved = RunFile::load(json)?;
     let shown = json.display();
-    let wav = saved.wav_path(json).ok_or_else(|| {
-        Error::new(format!("'{shown}' does not name a recording"))
-    })??;
+    let wav = saved
+        .wav_path(json)
+        .ok_or_else(|| Error::new(format!("'{shown}' does not name a recording")))??;
     let mut src = WavSource::open(&wav)?;
     let s = &saved.setup;
     let (n_run, n_wav) = (s.channels.len(), src.info().channels.len());
@@ -69,4 +69,3 @@ pub fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
     analysis.apply_verdicts(&saved.hits);
     Ok((analysis, wav, saved.variant))
 }
-

@@ -117,10 +117,7 @@ impl App {
         let worker = spawn_worker(engine, feed, rx, inbox);
         let mut app = App {
             model,
-            link: Link::Threaded {
-                cmds: tx,
-                worker,
-            },
+            link: Link::Threaded { cmds: tx, worker },
             compare_with: launch.compare_with,
         };
         app.load_initial();

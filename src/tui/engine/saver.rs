@@ -143,9 +143,7 @@ impl SaverCore {
                             self.stem = stem;
                             self.wrote_json = false;
                         }
-                        Err(e) => {
-                            out.push(Update::Problem(format!("cannot start a new run: {e}")))
-                        }
+                        Err(e) => out.push(Update::Problem(format!("cannot start a new run: {e}"))),
                     }
                 }
             }

@@ -10,9 +10,9 @@ mod signal;
 mod status;
 mod tables;
 
+use crate::hits::Verdict;
 use crate::tui::model::{Mode, Model, Panel};
 pub use plot::{CurvePlot, decimate};
-use crate::hits::Verdict;
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout};
 use ratatui::style::{Color, Modifier, Style};
@@ -22,7 +22,8 @@ use ratatui::widgets::{Block, Borders, Paragraph, Wrap};
 /// Smallest usable screen.
 pub const MIN_SIZE: (u16, u16) = (60, 16);
 /// Colours of overlaid saved runs (the current run uses the default foreground).
-pub(super) const OVERLAY_COLORS: [Color; 4] = [Color::Blue, Color::Magenta, Color::Cyan, Color::LightRed];
+pub(super) const OVERLAY_COLORS: [Color; 4] =
+    [Color::Blue, Color::Magenta, Color::Cyan, Color::LightRed];
 pub(super) const CURSOR: Color = Color::Red;
 pub(super) const MODE_MARK: Color = Color::Green;
 pub(super) const TRIGGER: Color = Color::Red;

@@ -1,17 +1,17 @@
 //! The averaged curve with coherence, overlays, mode marks and the cursor.
 
 use super::*;
+use crate::run::curve_read::SavedCurve;
 use crate::spectra::Basis;
 use crate::tui::engine::CurveSnap;
 use crate::tui::model::Model;
-use crate::run::curve_read::SavedCurve;
 use ratatui::Frame;
 use ratatui::buffer::Buffer;
-use ratatui::widgets::Widget;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::{Color, Style};
 use ratatui::symbols::Marker;
 use ratatui::text::{Line, Span};
+use ratatui::widgets::Widget;
 use ratatui::widgets::canvas::{Canvas, Context, Line as CLine};
 use ratatui::widgets::{Block, Borders, Paragraph, Wrap};
 
@@ -136,7 +136,10 @@ impl<'a> CurvePlot<'a> {
             view_hz: m.view_hz,
             cursor_hz: m.cursor_hz,
             modes: m.analysis.as_ref().map_or(Vec::new(), |a| {
-                a.modes.iter().map(|x| (x.frequency_hz, x.magnitude)).collect()
+                a.modes
+                    .iter()
+                    .map(|x| (x.frequency_hz, x.magnitude))
+                    .collect()
             }),
             empty_text: if m.counts().1 > 0 {
                 "no tap kept yet: the average starts with the first accepted tap"
@@ -176,7 +179,8 @@ impl Widget for CurvePlot<'_> {
         .areas(inner);
         let (lo, hi) = self.view_hz;
         let split = |r: Rect| {
-            let [g, p] = Layout::horizontal([Constraint::Length(GUTTER), Constraint::Min(4)]).areas(r);
+            let [g, p] =
+                Layout::horizontal([Constraint::Length(GUTTER), Constraint::Min(4)]).areas(r);
             (g, p)
         };
         let (pg, pp) = split(plot);
@@ -260,7 +264,10 @@ impl Widget for CurvePlot<'_> {
                     ctx.layer();
                     ctx.draw(&CLine::new(cursor, 0.0, cursor, 1.0, CURSOR));
                 });
-            Block::default().borders(Borders::TOP).border_style(dim()).render(cp, buf);
+            Block::default()
+                .borders(Borders::TOP)
+                .border_style(dim())
+                .render(cp, buf);
             let cp_inner = Rect::new(cp.x, cp.y + 1, cp.width, cp.height.saturating_sub(1));
             canvas.render(cp_inner, buf);
             let mut g = vec![Line::from("  coh"), Line::from("  1.0")];
@@ -388,9 +395,15 @@ mod tests {
             .find_map(|r| r.chars().position(|ch| ch == 'v'))
             .expect("a mode mark");
         assert!((28..=32).contains(&col), "mark at column {col}\n{text}");
-        assert!(text.contains("cursor 200.0 Hz  0.0 dB (1.00 g/N)  coh 1.000"), "{text}");
+        assert!(
+            text.contains("cursor 200.0 Hz  0.0 dB (1.00 g/N)  coh 1.000"),
+            "{text}"
+        );
         assert!(text.contains("coh"), "coherence strip drawn\n{text}");
-        assert!(text.contains("250.0") && text.contains("500.0 Hz"), "frequency axis\n{text}");
+        assert!(
+            text.contains("250.0") && text.contains("500.0 Hz"),
+            "frequency axis\n{text}"
+        );
     }
 
     #[test]

@@ -1,7 +1,7 @@
 //! The live signal and the last tap.
 
-use super::*;
 use super::status::level_text;
+use super::*;
 use crate::tui::engine::{Envelope, HitView};
 use crate::tui::model::Model;
 use ratatui::Frame;
