@@ -56,11 +56,6 @@ pub struct Opened {
 }
 
 impl SourceArgs {
-    pub fn is_demo(&self) -> bool {
-        self.demo.is_some()
-            || (self.serial.is_none() && self.audio.is_none() && self.replay.is_none())
-    }
-
     /// Open the chosen source (the simulated bench when none is chosen).
     pub fn open(&self, ch: &ChannelArgs, auto_taps: bool) -> Result<Opened> {
         let choice: RoleChoice = ch.role_choice();

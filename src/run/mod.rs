@@ -1,13 +1,13 @@
 //! Run files: the recording (WAV), the mode list (JSON) and the FRF table (CSV) of a variant.
 
-pub mod atomic;
+pub(crate) mod atomic;
 pub mod compare;
 pub mod curve_read;
 pub mod naming;
 pub mod recording;
 pub mod reopen;
-pub mod safe_path;
-pub mod validate;
+pub(crate) mod safe_path;
+pub(crate) mod validate;
 
 use crate::error::{Context, Error, Result};
 use crate::hits::{CheckConfig, TriggerConfig};

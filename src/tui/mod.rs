@@ -4,10 +4,8 @@
 //! - `model`: state, key map, `update(&mut Model, Msg) -> Vec<Effect>`.
 //! - `view`: `view(&Model, &mut Frame)`, a pure drawing function.
 //! - `app`: carries out effects, links model and engine, runs the terminal loop.
-//! - `bench`: latency, frame-rate and idle-CPU measurements.
 
 pub mod app;
-pub mod bench;
 pub mod engine;
 pub mod model;
 pub mod view;

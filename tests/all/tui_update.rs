@@ -10,10 +10,7 @@ use tapmodes::tui::model::{Action, Effect, Mode, Msg, action_for, scale_level, u
 use tapmodes::tui::{App, Launch};
 
 fn scratch(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tapmodes-tui-upd-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
+    crate::common::temp_dir(&format!("tui-upd-{name}"))
 }
 
 /// The demo arm with taps on the simulator's schedule (0.8 s, then every ~2.5 s).
