@@ -110,6 +110,14 @@ impl Engine {
         self.saver.detach(out);
     }
 
+    /// Tests: make every run-file write take at least `d` (a slow disk).
+    #[cfg(test)]
+    pub(crate) fn slow_saves(&mut self, d: std::time::Duration) {
+        if let Saver::Inline(core) = &mut self.saver {
+            core.slow_writes = Some(d);
+        }
+    }
+
     fn saver_state(&self) -> SaverState {
         self.saved.lock().unwrap_or_else(|p| p.into_inner()).clone()
     }

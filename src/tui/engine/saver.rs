@@ -61,6 +61,9 @@ pub(crate) struct SaverCore {
     /// The JSON of this run has been written at least once.
     wrote_json: bool,
     state: Arc<Mutex<SaverState>>,
+    /// Tests: how long each run-file write takes at least (a slow disk).
+    #[cfg(test)]
+    pub(crate) slow_writes: Option<std::time::Duration>,
 }
 
 impl SaverCore {
@@ -78,6 +81,8 @@ impl SaverCore {
             recorder: Some(recorder),
             wrote_json: false,
             state,
+            #[cfg(test)]
+            slow_writes: None,
         })
     }
 
@@ -167,6 +172,10 @@ impl SaverCore {
 
     /// Flush the recording and write the run files; true when they were written.
     fn write(&mut self, files: RunFiles, auto: bool, out: &mut Vec<Update>) -> bool {
+        #[cfg(test)]
+        if let Some(d) = self.slow_writes {
+            std::thread::sleep(d);
+        }
         self.flush(out);
         let (json, wav) = (self.path("json"), self.path("wav"));
         let encoding = self

@@ -174,3 +174,102 @@ fn analyse(mut engine: Engine, work: Receiver<Work>, out: Sender<Inbox>) {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::pipeline::AnalysisConfig;
+    use crate::run::RunFile;
+    use crate::signal::RoleChoice;
+    use crate::source::Source;
+    use crate::source::simulator::{Simulator, presets::preset};
+    use crate::tui::engine::EngineSetup;
+
+    /// Seconds each run-file write takes here (a slow disk).
+    const SLOW: Duration = Duration::from_millis(1500);
+
+    /// A real-time simulated arm tapped at 0.8 s and every ~2.5 s after, saved through a
+    /// saver whose writes take `SLOW`: the live view keeps moving while a save is under way
+    /// (the acquisition is not waiting on it), quitting is answered at once, and the files
+    /// written after quitting hold every tap taken.
+    #[test]
+    fn a_slow_save_neither_stalls_the_stream_nor_delays_quitting() {
+        let dir = std::env::temp_dir().join(format!("tapmodes-slow-save-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&dir);
+        let sim = Simulator::new(preset("tm9-arm-solid", 1).unwrap(), Some(8.0), true).real_time();
+        let info = sim.info().clone();
+        let roles = RoleChoice::default().resolve(&info).unwrap();
+        let mut engine = Engine::new(EngineSetup {
+            info,
+            roles,
+            config: AnalysisConfig::default(),
+            out_dir: dir.clone(),
+            label: "slow".into(),
+        })
+        .unwrap();
+        engine.slow_saves(SLOW);
+        let (cmd_tx, cmd_rx) = std::sync::mpsc::channel();
+        let (out_tx, out_rx) = std::sync::mpsc::channel();
+        let mut worker = spawn_worker(engine, LiveFeed::start(Box::new(sim)), cmd_rx, out_tx);
+
+        // Until the first save lands: note when the first hit arrived and every live view.
+        let t0 = Instant::now();
+        let (mut first_hit, mut lives) = (None, Vec::new());
+        loop {
+            let m = out_rx
+                .recv_timeout(Duration::from_secs(10))
+                .expect("updates");
+            match m {
+                Inbox::Update(Update::Analysis(_)) if first_hit.is_none() => {
+                    first_hit = Some(t0.elapsed())
+                }
+                Inbox::Update(Update::Live(l)) => lives.push((t0.elapsed(), l.position)),
+                Inbox::Update(Update::Saved { .. }) => break,
+                Inbox::Update(Update::Problem(p)) => panic!("{p}"),
+                _ => {}
+            }
+        }
+        let (hit, saved) = (first_hit.expect("a hit before its save"), t0.elapsed());
+        assert!(saved - hit >= SLOW, "the save took {:?}", saved - hit);
+        let during: Vec<_> = lives.iter().filter(|l| l.0 > hit && l.0 < saved).collect();
+        assert!(
+            during.len() >= 10,
+            "only {} live views during a {SLOW:?} save",
+            during.len()
+        );
+        assert!(
+            during
+                .windows(2)
+                .all(|w| w[1].1 > w[0].1 && w[1].0 - w[0].0 < Duration::from_millis(500)),
+            "the live view stalled during the save: {during:?}"
+        );
+
+        // The second tap (about 3.3 s): quit as soon as it is seen, while its save runs.
+        loop {
+            if let Inbox::Update(Update::Analysis(a)) = out_rx
+                .recv_timeout(Duration::from_secs(10))
+                .expect("updates")
+                && a.hits.len() == 2
+            {
+                break;
+            }
+        }
+        let asked = Instant::now();
+        cmd_tx.send((1, Cmd::Shutdown)).unwrap();
+        worker.stop_pump();
+        assert!(
+            asked.elapsed() < Duration::from_millis(500),
+            "quitting took {:?}",
+            asked.elapsed()
+        );
+        assert!(worker.finishing(), "the save should still be running");
+        worker.wait();
+        let run = RunFile::load(&dir.join("slow.json")).unwrap();
+        assert_eq!(run.hits_total, 2, "every tap taken is saved");
+        let wav = hound::WavReader::open(dir.join("slow.wav")).expect("a closed, valid WAV");
+        // The recording holds at least what the run file describes (blocks that arrived
+        // after the last save are kept too; re-analysis stops where the run does).
+        assert!(u64::from(wav.duration()) >= run.recording.unwrap().frames);
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+}
