@@ -1,12 +1,14 @@
 //! The terminal app: model / update / view over the shared pipeline.
 //!
 //! - `engine`: owns the analysis and the files; runs on a worker thread in the app.
-//! - `model`: state, key map, `update(&mut Model, Msg) -> Vec<Effect>`.
+//! - `keys`: the operator's actions, the key map, help and safety text.
+//! - `model`: state, `update(&mut Model, Msg) -> Vec<Effect>`.
 //! - `view`: `view(&Model, &mut Frame)`, a pure drawing function.
 //! - `app`: carries out effects, links model and engine, runs the terminal loop.
 
 pub mod app;
 pub mod engine;
+pub mod keys;
 pub mod model;
 pub mod view;
 
