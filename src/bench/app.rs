@@ -131,6 +131,7 @@ fn latency() -> Result<String> {
     }
     drop(feed);
     app.shutdown();
+    app.wait_for_files();
     let _ = std::fs::remove_dir_all(&dir);
     let n = samples_ms.len();
     let (min, med, max, _) = stats(&mut samples_ms);
@@ -174,6 +175,7 @@ fn render_rate() -> Result<String> {
     let overrun = app.model.live.as_ref().map_or(0, |l| l.overrun_frames);
     let hits = app.model.counts().1;
     app.shutdown();
+    app.wait_for_files();
     let _ = std::fs::remove_dir_all(&dir);
     let n = draw_ms.len();
     let (min, med, max, mean) = stats(&mut draw_ms);
@@ -204,6 +206,7 @@ fn idle_cpu() -> Result<String> {
     })?;
     let (c1, wall) = (process_cpu_s(), w0.elapsed().as_secs_f64());
     app.shutdown();
+    app.wait_for_files();
     let _ = std::fs::remove_dir_all(&dir);
     Ok(match (c0, c1) {
         (Some(a), Some(b)) => format!(
