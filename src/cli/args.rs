@@ -230,6 +230,33 @@ impl AnalysisArgs {
     }
 }
 
+/// A finite number above 0 (clap value parser: rejected with a sentence, never clamped).
+pub fn parse_positive(s: &str) -> std::result::Result<f64, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|v| v.is_finite() && *v > 0.0)
+        .ok_or_else(|| format!("'{s}' is not a positive number"))
+}
+
+/// A finite number of at least 0.
+pub fn parse_non_negative(s: &str) -> std::result::Result<f64, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|v| v.is_finite() && *v >= 0.0)
+        .ok_or_else(|| format!("'{s}' is not a number of at least 0"))
+}
+
+/// A probability: a number from 0 to 1.
+pub fn parse_probability(s: &str) -> std::result::Result<f64, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|v| (0.0..=1.0).contains(v))
+        .ok_or_else(|| format!("'{s}' is not a chance from 0 to 1"))
+}
+
 /// `--mass GRAMS`: a positive, finite mass in grams.
 pub fn parse_mass(s: &str) -> std::result::Result<f64, String> {
     s.trim()
@@ -353,6 +380,32 @@ mod tests {
                     "{sub} --{long} is under {h:?}"
                 );
             }
+        }
+    }
+
+    #[test]
+    fn numbers_are_rejected_not_clamped() {
+        assert_eq!(parse_positive("2.5"), Ok(2.5));
+        assert!(parse_positive("0").is_err());
+        assert!(parse_positive("-1").is_err());
+        assert!(parse_positive("inf").is_err());
+        assert_eq!(parse_non_negative("0"), Ok(0.0));
+        assert!(parse_non_negative("-0.1").is_err());
+        assert_eq!(parse_probability("1"), Ok(1.0));
+        assert!(parse_probability("1.5").is_err());
+        assert!(parse_probability("NaN").is_err());
+        use clap::Parser;
+        for bad in [
+            &["tapmodes", "tui", "--auto-tap", "0"][..],
+            &["tapmodes", "simulate", "--double-hits", "1.5"],
+            &["tapmodes", "simulate", "--noise", "-1"],
+            &["tapmodes", "simulate", "--force", "0"],
+            &["tapmodes", "simulate", "--hum", "-50"],
+        ] {
+            assert!(
+                crate::cli::Cli::try_parse_from(bad).is_err(),
+                "{bad:?} accepted"
+            );
         }
     }
 

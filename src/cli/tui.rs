@@ -31,7 +31,7 @@ pub struct TuiArgs {
     )]
     pub variant: String,
     /// Simulated bench only: fire a tap every SECONDS (toggle in the app).
-    #[arg(long, value_name = "SECONDS", help_heading = "Source")]
+    #[arg(long, value_name = "SECONDS", help_heading = "Source", value_parser = super::args::parse_positive)]
     pub auto_tap: Option<f64>,
     /// Saved runs to overlay and compare with from the start.
     #[arg(long, value_name = "RUN.json", help_heading = "Outputs")]
@@ -53,7 +53,7 @@ pub fn run(a: &TuiArgs) -> Result<()> {
         config,
         out_dir: a.out.clone(),
         variant: crate::run::validate::clean_text(&a.variant, false),
-        auto_tap_s: a.auto_tap.filter(|s| *s > 0.0),
+        auto_tap_s: a.auto_tap,
         demo: opened.demo,
         compare_with: a.compare.clone(),
     })
