@@ -269,3 +269,42 @@ pub fn write_counts_wav(path: &Path, fs: f64, bits: u16, channels: &[Vec<i32>]) 
     }
     super::atomic::write_atomic(path, &cursor.into_inner())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn encodings_read_back_as_written_and_unknown_text_is_refused() {
+        for e in Encoding::ALL {
+            let json = serde_json::to_string(&e).unwrap();
+            assert_eq!(
+                json,
+                format!("\"{}\"", e.text()),
+                "readable text in the file"
+            );
+            assert_eq!(serde_json::from_str::<Encoding>(&json).unwrap(), e);
+        }
+        let err = serde_json::from_str::<Encoding>("\"counts int24\"").unwrap_err();
+        assert!(
+            err.to_string()
+                .contains("unknown recording encoding 'counts int24'")
+        );
+        assert!(Encoding::Counts16.is_counts() && Encoding::Counts.is_counts());
+        assert!(!Encoding::Float32.is_counts() && !Encoding::AsStored.is_counts());
+    }
+
+    #[test]
+    fn the_schema_lists_every_encoding() {
+        let schema: serde_json::Value =
+            serde_json::from_str(include_str!("../../schema/run.schema.json")).unwrap();
+        let listed: Vec<&str> = schema["properties"]["recording"]["properties"]["encoding"]["enum"]
+            .as_array()
+            .expect("an enum of encodings in the schema")
+            .iter()
+            .map(|v| v.as_str().unwrap())
+            .collect();
+        let ours: Vec<&str> = Encoding::ALL.iter().map(|e| e.text()).collect();
+        assert_eq!(listed, ours);
+    }
+}
