@@ -69,3 +69,42 @@ pub fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant)> {
     analysis.apply_verdicts(&saved.hits);
     Ok((analysis, wav, saved.variant))
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::pipeline::{AnalysisConfig, analyse_source};
+    use crate::run::{RunFile, Variant};
+    use crate::signal::RoleChoice;
+    use crate::source::Source;
+    use crate::source::simulator::{Simulator, presets::preset};
+    use crate::spectra::{Basis, Estimator};
+
+    /// Configuration -> analysis -> run-file setup -> configuration gives back every setting
+    /// (the trigger channel given, as a run file always stores the one used).
+    #[test]
+    fn setup_and_configuration_round_trip() {
+        let mut sim = Simulator::new(preset("tm9-arm-solid", 3).unwrap(), Some(4.0), true);
+        let roles = RoleChoice::default().resolve(sim.info()).unwrap();
+        let mut cfg = AnalysisConfig::default();
+        cfg.trigger.channel = roles.force;
+        cfg.trigger.record_s = 0.5;
+        cfg.trigger.holdoff_s = 0.3;
+        cfg.checks.min_snr_db = 15.0;
+        cfg.spectra.pad = 4;
+        cfg.spectra.windows.exponential_end = 0.2;
+        cfg.modes.max_modes = 7;
+        cfg.modes.band_hz = (40.0, 3000.0);
+        cfg.estimator = Estimator::H2;
+        cfg.basis = Some(Basis::Frf(Estimator::H2));
+        let a = analyse_source(&mut sim, roles, cfg.clone(), false).unwrap();
+        assert!(a.accepted() > 0, "the run has taps to describe");
+        let spectra = a.spectra();
+        let variant = Variant {
+            label: "round trip".into(),
+            note: String::new(),
+            mass_g: None,
+        };
+        let run = RunFile::from_analysis(&a, &spectra, &a.search(&spectra), variant);
+        assert_eq!(run.analysis_config(), cfg);
+    }
+}
