@@ -2,7 +2,6 @@
 //!
 //! Data flow: `source` -> `hits` -> `spectra` -> `modes` -> `run`, driven by `pipeline`.
 
-pub mod bench; // accuracy of the estimators against simulated truth
 pub mod cli; // command-line front end over the library
 pub mod drive; // the motors' excitation bands and each mode's verdict against them
 pub mod error; // errors as values: one sentence with context

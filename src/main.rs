@@ -1,6 +1,34 @@
 //! The `tapmodes` binary: parse arguments, run, and turn errors into one sentence and exit 1.
+//!
+//! The library's commands (`tapmodes::cli`) plus `bench`, which lives here, outside the
+//! library: benchmarks are not part of what the library ships.
 
-use clap::Parser;
+mod bench;
+
+use clap::{Args, CommandFactory, FromArgMatches};
+
+/// Name and help line of the benchmark command.
+const BENCH: (&str, &str) = (
+    "bench",
+    "Benchmarks: speed and memory, decoder throughput, accuracy, app latency",
+);
+
+/// The library's command line with `bench` added.
+fn command() -> clap::Command {
+    tapmodes::cli::Cli::command().subcommand(bench::BenchArgs::augment_args(
+        clap::Command::new(BENCH.0).about(BENCH.1),
+    ))
+}
+
+fn run() -> tapmodes::error::Result<()> {
+    let matches = command().get_matches();
+    if let Some((_, sub)) = matches.subcommand().filter(|(n, _)| *n == BENCH.0) {
+        let args = bench::BenchArgs::from_arg_matches(sub).unwrap_or_else(|e| e.exit());
+        return bench::run(&args);
+    }
+    let cli = tapmodes::cli::Cli::from_arg_matches(&matches).unwrap_or_else(|e| e.exit());
+    tapmodes::cli::run(cli)
+}
 
 fn main() {
     // Behave like other Unix tools when the reader of our output goes away (`| head`):
@@ -10,9 +38,16 @@ fn main() {
     unsafe {
         libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
-    let cli = tapmodes::cli::Cli::parse();
-    if let Err(e) = tapmodes::cli::run(cli) {
+    if let Err(e) = run() {
         eprintln!("tapmodes: {e}");
         std::process::exit(1);
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn clap_accepts_the_whole_command_line() {
+        super::command().debug_assert();
     }
 }

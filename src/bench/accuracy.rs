@@ -1,8 +1,9 @@
 //! Accuracy of the mode estimators against the simulator's truth.
 //!
 //! Every case is a simulated bench (exact modal simulator, half-sine taps, white sensor
-//! noise) run through the same stages as `analyze`: trigger and checks, windows, averaged
-//! H1, `find_modes`. Each case is repeated over seeds; for each method the median and 95th
+//! noise) run through the public pipeline exactly as `analyze` runs a recording
+//! (`pipeline::analyse_source`, `Analysis::search`): trigger and checks, windows, averaged
+//! H1, the mode search with its tests. Each case is repeated over seeds; for each method the median and 95th
 //! percentile of the relative errors of frequency and damping are reported, beside the
 //! Cramer-Rao bound of the frequency.
 //!
@@ -19,17 +20,18 @@
 //! process", IEEE Trans. Signal Processing 43(4); this module computes it, it does not copy
 //! their closed form. The bound is for the response alone; the estimators also use the force.
 
-use crate::hits::{CheckConfig, HitDetector, TriggerConfig, TriggerLevel};
-use crate::modes::ringdown::{RingdownConfig, attach_ringdown};
-use crate::modes::{Mode, ModeConfig, find_modes};
-use crate::signal::{Role, Roles};
-use crate::source::Source;
-use crate::source::simulator::model::SimMode;
-use crate::source::simulator::{BenchPlan, HammerPlan, SensorPlan, Simulator, Tip};
-use crate::spectra::{Basis, Estimator, SpectraConfig, SpectralAverager};
 use nalgebra::{DMatrix, DVector};
 use std::f64::consts::PI;
 use std::fmt::Write;
+use tapmodes::hits::{CheckConfig, TriggerLevel};
+use tapmodes::modes::ringdown::{RingdownConfig, attach_ringdown};
+use tapmodes::modes::{Mode, ModeConfig};
+use tapmodes::pipeline::{AnalysisConfig, TriggerChoice, analyse_source};
+use tapmodes::signal::{Role, Roles};
+use tapmodes::source::Source;
+use tapmodes::source::simulator::model::SimMode;
+use tapmodes::source::simulator::{BenchPlan, HammerPlan, SensorPlan, Simulator, Tip};
+use tapmodes::spectra::{Basis, Estimator, SpectraConfig};
 
 const FS: f64 = 8000.0;
 
@@ -160,63 +162,52 @@ fn crb_relative(f: f64, z: f64, amplitude: f64, noise: f64, n: usize, hits: usiz
     }
 }
 
-/// One run: the modes found, and the same modes with ring-down attached.
+/// One run through the public pipeline, as `analyze` does it (`analyse_source`, then the
+/// analysis' own mode search); ring-down damping, which the pipeline reports only without
+/// a force channel, is added from the same accepted records as an extra method.
 fn run_once(case: &Case, noise_rms: f64, seed: u64) -> Option<Vec<Mode>> {
     let p = plan(case, noise_rms, seed);
     let secs = p.hammer.first_s + p.hammer.gap_s * case.hits as f64 + 0.2;
     let mut sim = Simulator::new(p, Some(secs), true);
-    let info = sim.info().clone();
     let roles = Roles {
         force: Some(0),
         response: 1,
         base: None,
     };
-    let trigger = TriggerConfig {
-        channel: 0,
-        level: TriggerLevel::NoiseMultiple(10.0),
-        pretrigger_s: 0.01,
-        record_s: case.record_s,
-        holdoff_s: 0.2,
+    let cfg = AnalysisConfig {
+        trigger: TriggerChoice {
+            channel: Some(0),
+            level: TriggerLevel::NoiseMultiple(10.0),
+            pretrigger_s: 0.01,
+            record_s: case.record_s,
+            holdoff_s: 0.2,
+        },
+        // Checks as the defaults, but the SNR check lowered so 20 dB cases are measured.
+        checks: CheckConfig {
+            min_snr_db: 10.0,
+            ..CheckConfig::default()
+        },
+        spectra: SpectraConfig::default(),
+        modes: ModeConfig {
+            band_hz: (20.0, 0.4 * FS),
+            ..ModeConfig::default()
+        },
+        estimator: Estimator::H1,
+        basis: Some(Basis::Frf(Estimator::H1)),
+        isolation_band: None,
     };
-    // Checks as the defaults, but the SNR check lowered so 20 dB cases are measured.
-    let checks = CheckConfig {
-        min_snr_db: 10.0,
-        ..CheckConfig::default()
-    };
-    let mut det = HitDetector::new(&info, roles, trigger, checks);
-    let spectra_cfg = SpectraConfig::default();
-    let mut avg = SpectralAverager::new(
-        roles,
-        det.record_len(),
-        det.pretrigger_len(),
-        FS,
-        &spectra_cfg,
-        ("N".into(), "m/s^2".into()),
-        false,
-    );
-    let mut responses: Vec<Vec<f64>> = Vec::new();
-    let mut hits = Vec::new();
-    while let Ok(Some(block)) = sim.next_block() {
-        det.push(&block, &mut hits);
-        for h in hits.drain(..) {
-            if h.verdict.is_accepted() && responses.len() < case.hits {
-                avg.add(&h.record);
-                responses.push(h.record[1].clone());
-            }
-        }
-    }
-    if responses.is_empty() {
+    let analysis = analyse_source(&mut sim, roles, cfg, true).ok()?;
+    if analysis.accepted() == 0 {
         return None;
     }
-    let s = avg.spectra();
-    let curve = s.curve(Basis::Frf(Estimator::H1))?;
-    let cfg = ModeConfig {
-        band_hz: (20.0, 0.4 * FS),
-        ..ModeConfig::default()
-    };
-    let mut modes = find_modes(&s.freqs, &curve, s.resolution_hz, s.tau_s, &cfg);
-    let refs: Vec<&[f64]> = responses.iter().map(|r| r.as_slice()).collect();
-    attach_ringdown(&mut modes, &refs, FS, &RingdownConfig::default());
+    let spectra = analysis.spectra();
+    let mut modes = analysis.search(&spectra).modes;
+    let responses: Vec<&[f64]> = analysis
+        .accepted_records()
+        .into_iter()
+        .map(|r| r[1].as_slice())
+        .collect();
+    attach_ringdown(&mut modes, &responses, FS, &RingdownConfig::default());
     Some(modes)
 }
 

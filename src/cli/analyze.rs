@@ -17,33 +17,38 @@ pub struct AnalyzeArgs {
     /// stored settings and operator verdicts.
     #[arg(value_name = "INPUT")]
     pub input: PathBuf,
-    /// Where to write the mode list (JSON); the FRF CSV goes beside it with the same stem
-    /// [default: NAME.modes.json beside a WAV, NAME.again.json beside a run file].
-    #[arg(long, short, value_name = "OUT.json")]
-    pub out: Option<PathBuf>,
-    /// Variant label stored in the mode list [default: the input's file stem].
-    #[arg(long, value_name = "LABEL")]
-    pub variant: Option<String>,
-    /// Free-text note stored with the variant.
-    #[arg(long, default_value = "", value_name = "TEXT")]
-    pub note: String,
-    /// Mass of the part as tested, in grams: stored with the variant for the mass-corrected
-    /// stiffness ratio of `compare` (re-analysing a run file keeps its mass unless given).
-    #[arg(long, value_name = "GRAMS", value_parser = super::args::parse_mass)]
-    pub mass: Option<f64>,
-    /// Also print every hit with its verdict.
-    #[arg(long)]
-    pub hits: bool,
-    /// With a base channel: the mount's transmissibility in dB at HZ or over LO:HI (the
-    /// motors' excitation band, say), measured and from the fitted mount model.
-    #[arg(long, value_name = "HZ|LO:HI", value_parser = parse_freq_or_band)]
-    pub isolation: Option<(f64, f64)>,
     #[command(flatten)]
     pub channels: ChannelArgs,
     #[command(flatten)]
     pub analysis: AnalysisArgs,
     #[command(flatten)]
     pub drive: super::drive_args::DriveArgs,
+    /// Where to write the mode list (JSON); the FRF CSV goes beside it with the same stem
+    /// [default: NAME.modes.json beside a WAV, NAME.again.json beside a run file].
+    #[arg(long, short, value_name = "OUT.json", help_heading = "Outputs")]
+    pub out: Option<PathBuf>,
+    /// Variant label stored in the mode list [default: the input's file stem].
+    #[arg(long, value_name = "LABEL", help_heading = "Outputs")]
+    pub variant: Option<String>,
+    /// Free-text note stored with the variant.
+    #[arg(
+        long,
+        default_value = "",
+        value_name = "TEXT",
+        help_heading = "Outputs"
+    )]
+    pub note: String,
+    /// Mass of the part as tested, in grams: stored with the variant for the mass-corrected
+    /// stiffness ratio of `compare` (re-analysing a run file keeps its mass unless given).
+    #[arg(long, value_name = "GRAMS", value_parser = super::args::parse_mass, help_heading = "Outputs")]
+    pub mass: Option<f64>,
+    /// Also print every hit with its verdict.
+    #[arg(long, help_heading = "Outputs")]
+    pub hits: bool,
+    /// With a base channel: the mount's transmissibility in dB at HZ or over LO:HI (the
+    /// motors' excitation band, say), measured and from the fitted mount model.
+    #[arg(long, value_name = "HZ|LO:HI", value_parser = super::args::parse_freq_or_band, help_heading = "Outputs")]
+    pub isolation: Option<(f64, f64)>,
 }
 
 /// Open a WAV with the channel options applied (scales, units, names).
@@ -90,7 +95,7 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
     let cli_note = validate::clean_text(&a.note, true);
     let mut drive = a.drive.drive()?;
     let (mut analysis, wav, mut variant) = if is_json {
-        let (analysis, wav, saved, saved_drive) = reanalyse(&a.input)?;
+        let (analysis, wav, saved, saved_drive) = crate::run::reopen::reanalyse(&a.input)?;
         check_outputs(&out, &[&a.input, &wav])?;
         drive = drive.or(saved_drive);
         (analysis, wav, saved)
@@ -181,94 +186,6 @@ fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
-fn parse_freq_or_band(s: &str) -> std::result::Result<(f64, f64), String> {
-    let num = |t: &str| {
-        t.trim()
-            .parse::<f64>()
-            .ok()
-            .filter(|v| v.is_finite() && *v > 0.0)
-            .ok_or_else(|| format!("'{t}' is not a frequency in Hz"))
-    };
-    match s.split_once(':') {
-        Some((a, b)) => {
-            let (lo, hi) = (num(a)?, num(b)?);
-            if lo >= hi {
-                return Err(format!("the band {s} is empty (LO must be below HI)"));
-            }
-            Ok((lo, hi))
-        }
-        None => num(s).map(|f| (f, f)),
-    }
-}
-
-/// Measured and modelled transmissibility at a frequency or over a band.
-/// Re-run a saved run: same recording, same settings, same operator verdicts. The run
-/// file is checked like command-line settings, its recording must lie in its folder and
-/// match it (channels, rate, length), and the recording's own calibration and full scale
-/// are taken from the run, so re-analysis reproduces the capture.
-fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
-    let saved = RunFile::load(json)?;
-    let shown = json.display();
-    let wav = saved.wav_path(json).ok_or_else(|| {
-        crate::error::Error::new(format!("'{shown}' does not name a recording"))
-    })??;
-    let mut src = WavSource::open(&wav)?;
-    let s = &saved.setup;
-    let (n_run, n_wav) = (s.channels.len(), src.info().channels.len());
-    if n_run != n_wav {
-        crate::fail!(
-            "'{}' has {n_wav} channels but the run '{shown}' was made with {n_run}: it is not this run's recording",
-            wav.display()
-        );
-    }
-    if (src.info().sample_rate - s.sample_rate_hz.round()).abs() > 0.5 {
-        crate::fail!(
-            "'{}' is sampled at {} Hz but the run '{shown}' at {} Hz: it is not this run's recording",
-            wav.display(),
-            src.info().sample_rate,
-            s.sample_rate_hz
-        );
-    }
-    let rec = saved.recording.as_ref();
-    let counts = rec.is_some_and(|r| r.encoding.starts_with("counts"));
-    for (i, c) in s.channels.iter().enumerate() {
-        src.calibrate(i, &c.unit, if counts { c.scale } else { 1.0 });
-        src.set_full_scale(i, c.full_scale);
-        src.set_channel(i, &c.name, c.role);
-    }
-    if let Some(r) = rec {
-        let lost: u64 = r.gaps.iter().map(|g| g.1).sum();
-        let needed = r.frames - lost;
-        if src.frames() < needed {
-            crate::fail!(
-                "'{}' holds {} frames but the run '{shown}' covers {needed}: the recording is shorter than its run",
-                wav.display(),
-                src.frames()
-            );
-        }
-        if src.frames() > needed {
-            eprintln!(
-                "note: '{}' goes on {} frames past the run (a capture that ended without its last save); analysing the first {needed} as the run did",
-                wav.display(),
-                src.frames() - needed
-            );
-            src.limit_frames(needed);
-        }
-        src.skip_gaps(&r.gaps);
-    }
-    let cfg = saved.analysis_config();
-    let mut analysis = Analysis::new(&src.info().clone(), s.roles, cfg, true)?;
-    analysis.set_disarmed(saved.disarmed.clone());
-    let mut analysis = crate::pipeline::drain_into(&mut src, analysis)?;
-    analysis.apply_verdicts(&saved.hits);
-    let drive = saved.drive.map(|d| d.description);
-    if let Some(d) = &drive {
-        d.check()
-            .map_err(|e| e.context(format!("the drive stored in '{shown}'")))?;
-    }
-    Ok((analysis, wav, saved.variant, drive))
-}
-
 fn finish(
     analysis: &Analysis,
     variant: Variant,
@@ -286,9 +203,9 @@ fn finish(
         );
     }
     let encoding = if analysis.info().channels.iter().all(|c| c.scale == 1.0) {
-        "as stored"
+        crate::run::recording::Encoding::AsStored
     } else {
-        "counts"
+        crate::run::recording::Encoding::Counts
     };
     let note = crate::run::RecordingNote {
         wav,

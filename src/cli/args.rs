@@ -22,28 +22,28 @@ pub enum ViewArg {
 #[derive(Debug, Clone, Args)]
 pub struct ChannelArgs {
     /// Channel (from 0) holding the hammer force [default: 0 with two or more channels].
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", help_heading = "Channels")]
     pub force_channel: Option<usize>,
     /// Channel (from 0) holding the response [default: 1 with two or more channels, else 0].
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", help_heading = "Channels")]
     pub response_channel: Option<usize>,
     /// Channel (from 0) measuring the base of a soft-mounted part (enables transmissibility).
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", help_heading = "Channels")]
     pub base_channel: Option<usize>,
     /// Ignore any force channel: response-only analysis.
-    #[arg(long)]
+    #[arg(long, help_heading = "Channels")]
     pub no_force: bool,
     /// Force sensitivity: force unit per count (e.g. 0.0015 for N per count).
-    #[arg(long, value_name = "X")]
+    #[arg(long, value_name = "X", help_heading = "Channels")]
     pub force_scale: Option<f64>,
     /// Unit of the force after scaling [default: N when --force-scale is given].
-    #[arg(long, value_name = "UNIT")]
+    #[arg(long, value_name = "UNIT", help_heading = "Channels")]
     pub force_unit: Option<String>,
     /// Response sensitivity: response unit per count (e.g. 0.000488 for g per count).
-    #[arg(long, value_name = "X")]
+    #[arg(long, value_name = "X", help_heading = "Channels")]
     pub response_scale: Option<f64>,
     /// Unit of the response (and base) after scaling [default: g when --response-scale is given].
-    #[arg(long, value_name = "UNIT")]
+    #[arg(long, value_name = "UNIT", help_heading = "Channels")]
     pub response_unit: Option<String>,
 }
 
@@ -60,81 +60,112 @@ impl ChannelArgs {
 
 #[derive(Debug, Clone, Args)]
 pub struct AnalysisArgs {
-    /// Limit the mode search to LO:HI Hz (either side may be empty, e.g. 50: or :1200).
-    #[arg(long, value_name = "LO:HI", value_parser = parse_band)]
-    pub band: Option<(f64, f64)>,
     /// Channel the trigger watches [default: the force channel, else the response].
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", help_heading = "Trigger")]
     pub trigger_channel: Option<usize>,
     /// Trigger when the channel deviates from its baseline by this much (channel unit).
-    #[arg(long, value_name = "X", conflicts_with = "trigger_noise")]
+    #[arg(
+        long,
+        value_name = "X",
+        conflicts_with = "trigger_noise",
+        help_heading = "Trigger"
+    )]
     pub trigger_level: Option<f64>,
     /// Trigger at this multiple of the measured noise floor (RMS) [default: 10].
-    #[arg(long, value_name = "K")]
+    #[arg(long, value_name = "K", help_heading = "Trigger")]
     pub trigger_noise: Option<f64>,
     /// Samples kept before the trigger, in ms [default: 10].
-    #[arg(long, value_name = "MS")]
+    #[arg(long, value_name = "MS", help_heading = "Trigger")]
     pub pretrigger_ms: Option<f64>,
     /// Length of each hit record in s, pre-trigger included [default: 1.0].
-    #[arg(long, value_name = "S")]
+    #[arg(long, value_name = "S", help_heading = "Trigger")]
     pub record_s: Option<f64>,
     /// Dead time after a record before the next trigger, in s [default: 0.2].
-    #[arg(long, value_name = "S")]
+    #[arg(long, value_name = "S", help_heading = "Trigger")]
     pub holdoff_s: Option<f64>,
     /// Largest end-of-record response level still counted as decayed, % of peak [default: 10].
-    #[arg(long, value_name = "PCT")]
+    #[arg(long, value_name = "PCT", help_heading = "Trigger")]
     pub residual_limit: Option<f64>,
     /// Smallest response peak over the noise floor, dB [default: 20].
-    #[arg(long, value_name = "DB")]
+    #[arg(long, value_name = "DB", help_heading = "Trigger")]
     pub min_snr_db: Option<f64>,
     /// Length of the flat part of the force window after the trigger, ms [default: 5].
-    #[arg(long, value_name = "MS")]
+    #[arg(long, value_name = "MS", help_heading = "Spectra")]
     pub force_window_ms: Option<f64>,
     /// Value the exponential window falls to at the record end; 1 turns it off [default: 0.1].
-    #[arg(long, value_name = "X")]
+    #[arg(long, value_name = "X", help_heading = "Spectra")]
     pub exp_end: Option<f64>,
     /// Zero-padding factor of the FFT [default: 2].
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", help_heading = "Spectra")]
     pub pad: Option<usize>,
     /// FRF estimator.
-    #[arg(long, value_enum, default_value_t = Estimator::H1)]
+    #[arg(long, value_enum, default_value_t = Estimator::H1, help_heading = "Spectra")]
     pub estimator: Estimator,
     /// Curve the modes are read from [default: frf with a force channel, else spectrum].
-    #[arg(long, value_enum)]
+    #[arg(long, value_enum, help_heading = "Spectra")]
     pub view: Option<ViewArg>,
+    /// Limit the mode search to LO:HI Hz (either side may be empty, e.g. 50: or :1200).
+    #[arg(long, value_name = "LO:HI", value_parser = parse_band, help_heading = "Modes")]
+    pub band: Option<(f64, f64)>,
     /// Smallest peak prominence, dB [default: 3 on an FRF or transmissibility with two or
     /// more averages (the coherence vouches for the peak), else 6].
-    #[arg(long, value_name = "DB")]
+    #[arg(long, value_name = "DB", help_heading = "Modes")]
     pub min_prominence_db: Option<f64>,
     /// What the response sensor measures; decides how spectra are weighted before modes are
     /// read (accelerometer: divided by frequency; velocity, piezo, microphone: as is;
     /// displacement: multiplied by frequency) [default: accelerometer].
-    #[arg(long, value_enum, value_name = "KIND")]
+    #[arg(long, value_enum, value_name = "KIND", help_heading = "Modes")]
     pub response_sensor: Option<crate::signal::SensorKind>,
     /// Most modes listed; peaks beyond it are named in the notes [default: 12].
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", help_heading = "Modes")]
     pub max_modes: Option<usize>,
 }
 
-fn parse_band(s: &str) -> std::result::Result<(f64, f64), String> {
-    let (a, b) = s
-        .split_once(':')
-        .ok_or_else(|| format!("'{s}' is not a band; write LO:HI in Hz, e.g. 50:1500"))?;
+/// What a band option accepts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum BandForm {
+    /// `LO:HI` in Hz, either side may be empty (0 and no upper limit), `0` allowed.
+    Open,
+    /// `HZ` (a single frequency) or `LO:HI`, both sides given and above 0.
+    FrequencyOrBand,
+}
+
+/// The one parser of frequency bands on the command line; `(f, f)` for a single frequency.
+pub fn parse_band_as(s: &str, form: BandForm) -> std::result::Result<(f64, f64), String> {
+    let open = form == BandForm::Open;
     let num = |t: &str, empty: f64| -> std::result::Result<f64, String> {
-        if t.trim().is_empty() {
+        if open && t.trim().is_empty() {
             return Ok(empty);
         }
         t.trim()
             .parse::<f64>()
             .ok()
-            .filter(|v| v.is_finite() && *v >= 0.0)
+            .filter(|v| v.is_finite() && (*v > 0.0 || open && *v == 0.0))
             .ok_or_else(|| format!("'{t}' is not a frequency in Hz"))
     };
-    let (lo, hi) = (num(a, 0.0)?, num(b, f64::INFINITY)?);
-    if lo >= hi {
-        return Err(format!("the band {s} is empty (LO must be below HI)"));
+    match s.split_once(':') {
+        Some((a, b)) => {
+            let (lo, hi) = (num(a, 0.0)?, num(b, f64::INFINITY)?);
+            if lo >= hi {
+                return Err(format!("the band {s} is empty (LO must be below HI)"));
+            }
+            Ok((lo, hi))
+        }
+        None if open => Err(format!(
+            "'{s}' is not a band; write LO:HI in Hz, e.g. 50:1500"
+        )),
+        None => num(s, 0.0).map(|f| (f, f)),
     }
-    Ok((lo, hi))
+}
+
+/// `--band LO:HI` (either side may be empty).
+pub fn parse_band(s: &str) -> std::result::Result<(f64, f64), String> {
+    parse_band_as(s, BandForm::Open)
+}
+
+/// `HZ` or `LO:HI` (the isolation options).
+pub fn parse_freq_or_band(s: &str) -> std::result::Result<(f64, f64), String> {
+    parse_band_as(s, BandForm::FrequencyOrBand)
 }
 
 impl AnalysisArgs {
@@ -206,6 +237,33 @@ impl AnalysisArgs {
     }
 }
 
+/// A finite number above 0 (clap value parser: rejected with a sentence, never clamped).
+pub fn parse_positive(s: &str) -> std::result::Result<f64, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|v| v.is_finite() && *v > 0.0)
+        .ok_or_else(|| format!("'{s}' is not a positive number"))
+}
+
+/// A finite number of at least 0.
+pub fn parse_non_negative(s: &str) -> std::result::Result<f64, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|v| v.is_finite() && *v >= 0.0)
+        .ok_or_else(|| format!("'{s}' is not a number of at least 0"))
+}
+
+/// A probability: a number from 0 to 1.
+pub fn parse_probability(s: &str) -> std::result::Result<f64, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|v| (0.0..=1.0).contains(v))
+        .ok_or_else(|| format!("'{s}' is not a chance from 0 to 1"))
+}
+
 /// `--mass GRAMS`: a positive, finite mass in grams.
 pub fn parse_mass(s: &str) -> std::result::Result<f64, String> {
     s.trim()
@@ -222,5 +280,154 @@ fn positive(v: f64, what: &str) -> Result<f64> {
         Err(Error::new(format!(
             "{what} must be a positive number, not {v}"
         )))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use clap::CommandFactory;
+
+    #[test]
+    fn clap_accepts_the_definitions() {
+        crate::cli::Cli::command().debug_assert();
+    }
+
+    /// The number after `[default: ` in an option's help (first number when it names
+    /// several cases).
+    fn documented(cmd: &clap::Command, long: &str) -> f64 {
+        let arg = cmd
+            .get_arguments()
+            .find(|a| a.get_long() == Some(long))
+            .unwrap_or_else(|| panic!("no --{long} in '{}'", cmd.get_name()));
+        let help = arg.get_help().expect("a help text").to_string();
+        let at = help
+            .find("[default: ")
+            .unwrap_or_else(|| panic!("--{long} documents no default: {help}"));
+        let rest = &help[at + 10..];
+        let end = rest
+            .find(|c: char| !(c.is_ascii_digit() || c == '.'))
+            .unwrap_or(rest.len());
+        rest[..end]
+            .parse()
+            .unwrap_or_else(|_| panic!("--{long}: '{}' is not a number", &rest[..end]))
+    }
+
+    #[test]
+    fn documented_defaults_match_the_code() {
+        let t = TriggerChoice::default();
+        let c = CheckConfig::default();
+        let w = WindowConfig::default();
+        let m = ModeConfig::default();
+        let TriggerLevel::NoiseMultiple(k) = t.level else {
+            panic!("the default trigger is a noise multiple, as the help says");
+        };
+        let expected = [
+            ("trigger-noise", k),
+            ("pretrigger-ms", t.pretrigger_s * 1000.0),
+            ("record-s", t.record_s),
+            ("holdoff-s", t.holdoff_s),
+            ("residual-limit", c.residual_limit * 100.0),
+            ("min-snr-db", c.min_snr_db),
+            ("force-window-ms", w.force_s * 1000.0),
+            ("exp-end", w.exponential_end),
+            ("pad", SpectraConfig::default().pad as f64),
+            ("min-prominence-db", m.min_prominence_coherent_db),
+            ("max-modes", m.max_modes as f64),
+        ];
+        let root = crate::cli::Cli::command();
+        for sub in ["analyze", "capture", "tui"] {
+            let cmd = root.find_subcommand(sub).unwrap();
+            for (long, value) in expected {
+                let doc = documented(cmd, long);
+                assert!(
+                    (doc - value).abs() <= 1e-9 * value.abs().max(1.0),
+                    "{sub} --{long}: help says {doc}, the code uses {value}"
+                );
+            }
+        }
+        // The prominence help names both cases: 3 dB with coherence, else 6 dB.
+        let help = root
+            .find_subcommand("analyze")
+            .unwrap()
+            .get_arguments()
+            .find(|a| a.get_long() == Some("min-prominence-db"))
+            .and_then(|a| a.get_help())
+            .unwrap()
+            .to_string();
+        assert!(
+            help.contains(&format!("else {}]", m.min_prominence_db)),
+            "{help}"
+        );
+        let compare = root.find_subcommand("compare").unwrap();
+        use crate::run::compare::{DEFAULT_FLOOR_DAMPING_PCT, DEFAULT_FLOOR_FREQUENCY_PCT};
+        assert_eq!(documented(compare, "floor"), DEFAULT_FLOOR_FREQUENCY_PCT);
+        assert_eq!(
+            documented(compare, "floor-damping"),
+            DEFAULT_FLOOR_DAMPING_PCT
+        );
+    }
+
+    #[test]
+    fn every_analysis_option_has_a_heading() {
+        let root = crate::cli::Cli::command();
+        for sub in ["analyze", "capture", "tui"] {
+            let cmd = root.find_subcommand(sub).unwrap();
+            for a in cmd.get_arguments().filter(|a| a.get_long().is_some()) {
+                let long = a.get_long().unwrap();
+                if ["help", "version"].contains(&long) {
+                    continue;
+                }
+                let h = a.get_help_heading();
+                assert!(
+                    matches!(
+                        h,
+                        Some("Source" | "Channels" | "Trigger" | "Spectra" | "Modes" | "Outputs")
+                    ),
+                    "{sub} --{long} is under {h:?}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn numbers_are_rejected_not_clamped() {
+        assert_eq!(parse_positive("2.5"), Ok(2.5));
+        assert!(parse_positive("0").is_err());
+        assert!(parse_positive("-1").is_err());
+        assert!(parse_positive("inf").is_err());
+        assert_eq!(parse_non_negative("0"), Ok(0.0));
+        assert!(parse_non_negative("-0.1").is_err());
+        assert_eq!(parse_probability("1"), Ok(1.0));
+        assert!(parse_probability("1.5").is_err());
+        assert!(parse_probability("NaN").is_err());
+        use clap::Parser;
+        for bad in [
+            &["tapmodes", "tui", "--auto-tap", "0"][..],
+            &["tapmodes", "simulate", "--double-hits", "1.5"],
+            &["tapmodes", "simulate", "--noise", "-1"],
+            &["tapmodes", "simulate", "--force", "0"],
+            &["tapmodes", "simulate", "--hum", "-50"],
+        ] {
+            assert!(
+                crate::cli::Cli::try_parse_from(bad).is_err(),
+                "{bad:?} accepted"
+            );
+        }
+    }
+
+    #[test]
+    fn one_band_parser() {
+        assert_eq!(parse_band("50:1500"), Ok((50.0, 1500.0)));
+        assert_eq!(parse_band(":1200"), Ok((0.0, 1200.0)));
+        assert_eq!(parse_band("50:"), Ok((50.0, f64::INFINITY)));
+        assert!(parse_band("120").is_err(), "a band needs LO:HI");
+        assert!(parse_band("900:100").is_err());
+        assert!(parse_band("-5:100").is_err());
+        assert_eq!(parse_freq_or_band("120"), Ok((120.0, 120.0)));
+        assert_eq!(parse_freq_or_band("80:200"), Ok((80.0, 200.0)));
+        assert!(parse_freq_or_band(":200").is_err(), "both sides needed");
+        assert!(parse_freq_or_band("0").is_err(), "a frequency is above 0");
+        assert!(parse_freq_or_band("nan").is_err());
     }
 }

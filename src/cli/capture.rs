@@ -18,28 +18,43 @@ use std::sync::atomic::{AtomicBool, Ordering};
 pub struct CaptureArgs {
     #[command(flatten)]
     pub source: SourceArgs,
-    /// Stop after this many accepted hits.
-    #[arg(long, default_value_t = 5, value_name = "N")]
-    pub hits: usize,
-    /// Folder for the run files (created if missing).
-    #[arg(long, default_value = "runs", value_name = "DIR")]
-    pub out: PathBuf,
-    /// Variant label; also names the files (LABEL.wav, LABEL.json, LABEL.csv).
-    #[arg(long, default_value = "variant", value_name = "LABEL")]
-    pub variant: String,
-    /// Free-text note stored with the variant.
-    #[arg(long, default_value = "", value_name = "TEXT")]
-    pub note: String,
-    /// Mass of the part as tested, in grams: stored with the variant for the mass-corrected
-    /// stiffness ratio of `compare`.
-    #[arg(long, value_name = "GRAMS", value_parser = super::args::parse_mass)]
-    pub mass: Option<f64>,
     #[command(flatten)]
     pub channels: ChannelArgs,
     #[command(flatten)]
     pub analysis: AnalysisArgs,
     #[command(flatten)]
     pub drive: super::drive_args::DriveArgs,
+    /// Stop after this many accepted hits.
+    #[arg(long, default_value_t = 5, value_name = "N", help_heading = "Trigger")]
+    pub hits: usize,
+    /// Folder for the run files (created if missing).
+    #[arg(
+        long,
+        default_value = "runs",
+        value_name = "DIR",
+        help_heading = "Outputs"
+    )]
+    pub out: PathBuf,
+    /// Variant label; also names the files (LABEL.wav, LABEL.json, LABEL.csv).
+    #[arg(
+        long,
+        default_value = "variant",
+        value_name = "LABEL",
+        help_heading = "Outputs"
+    )]
+    pub variant: String,
+    /// Free-text note stored with the variant.
+    #[arg(
+        long,
+        default_value = "",
+        value_name = "TEXT",
+        help_heading = "Outputs"
+    )]
+    pub note: String,
+    /// Mass of the part as tested, in grams: stored with the variant for the mass-corrected
+    /// stiffness ratio of `compare`.
+    #[arg(long, value_name = "GRAMS", value_parser = super::args::parse_mass, help_heading = "Outputs")]
+    pub mass: Option<f64>,
 }
 
 pub fn run(a: &CaptureArgs) -> Result<()> {

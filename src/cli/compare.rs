@@ -41,17 +41,17 @@ pub struct CompareArgs {
     pub forbid: Vec<PairRule>,
     /// Band of interest for comparing mount isolation (the motors' excitation band), HZ or
     /// LO:HI [default: the band both run files stored with analyze --isolation].
-    #[arg(long, value_name = "HZ|LO:HI", value_parser = parse_band)]
+    #[arg(long, value_name = "HZ|LO:HI", value_parser = super::args::parse_freq_or_band)]
     pub isolation: Option<(f64, f64)>,
     /// Predicted modes to check each run against: CSV with frequency_hz and optional label
     /// and damping_ratio (or damping_pct) columns.
     #[arg(long, value_name = "FILE.csv")]
     pub predicted: Option<PathBuf>,
     /// Print the comparison as JSON instead of a table.
-    #[arg(long, conflicts_with = "csv")]
+    #[arg(long, conflicts_with = "csv", help_heading = "Outputs")]
     pub json: bool,
     /// Print the comparison as CSV (one row per pair, unpaired mode, mount and prediction).
-    #[arg(long)]
+    #[arg(long, help_heading = "Outputs")]
     pub csv: bool,
     /// Judge every run against this drive [default: the drive stored in the runs].
     #[command(flatten)]
@@ -79,26 +79,6 @@ pub fn parse_rule(s: &str) -> std::result::Result<PairRule, String> {
         baseline_mode: num(a).ok_or_else(bad)?,
         variant_mode: num(b).ok_or_else(bad)?,
     })
-}
-
-fn parse_band(s: &str) -> std::result::Result<(f64, f64), String> {
-    let num = |t: &str| {
-        t.trim()
-            .parse::<f64>()
-            .ok()
-            .filter(|v| v.is_finite() && *v > 0.0)
-            .ok_or_else(|| format!("'{t}' is not a frequency in Hz"))
-    };
-    match s.split_once(':') {
-        Some((a, b)) => {
-            let (lo, hi) = (num(a)?, num(b)?);
-            if lo >= hi {
-                return Err(format!("the band {s} is empty (LO must be below HI)"));
-            }
-            Ok((lo, hi))
-        }
-        None => num(s).map(|f| (f, f)),
-    }
 }
 
 fn percent(v: f64, what: &str, max: f64) -> Result<f64> {

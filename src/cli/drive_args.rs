@@ -8,6 +8,7 @@ use std::path::PathBuf;
 /// The motors' excitation bands are estimates from nameplate values; the verdicts are
 /// guidance, not a substitute for a careful first hover. Nothing here runs a motor.
 #[derive(Debug, Clone, Default, Args)]
+#[command(next_help_heading = "Modes")]
 pub struct DriveArgs {
     /// Drive file (`key = value` lines: motor_kv, cells, cell_volts, throttle, blades,
     /// near_pct, or rpm instead of the first four; see the README).

@@ -1,22 +1,21 @@
 //! Command-line front end: argument definitions and dispatch to the library.
 
-pub mod amend;
-pub mod analyze;
-pub mod args;
-pub mod bench;
-pub mod capture;
-pub mod compare;
-pub mod drive_args;
-pub mod ports;
-pub mod report;
-pub mod simulate;
-pub mod source_args;
-pub mod tui;
+pub(crate) mod amend;
+pub(crate) mod analyze;
+pub(crate) mod args;
+pub(crate) mod capture;
+pub(crate) mod compare;
+pub(crate) mod drive_args;
+pub(crate) mod ports;
+pub(crate) mod report;
+pub(crate) mod simulate;
+pub(crate) mod source_args;
+pub(crate) mod tui;
 
 use crate::error::Result;
 use clap::{Parser, Subcommand};
 
-const SAFETY: &str = "Safety: take the propellers off, disconnect the flight battery and secure the \
+pub const SAFETY: &str = "Safety: take the propellers off, disconnect the flight battery and secure the \
 craft before tapping it; tap gently. This tool's findings do not replace the manufacturer's \
 guidance, local rules or a careful first hover; the motor-band verdicts are estimates from \
 nameplate values, guidance only. No motor is run.";
@@ -29,11 +28,11 @@ nameplate values, guidance only. No motor is run.";
 #[command(name = "tapmodes", version, after_help = SAFETY)]
 pub struct Cli {
     #[command(subcommand)]
-    pub command: Option<Command>,
+    pub(crate) command: Option<Command>,
 }
 
 #[derive(Debug, Subcommand)]
-pub enum Command {
+pub(crate) enum Command {
     /// The terminal app (the default): live bench view on any source.
     Tui(Box<tui::TuiArgs>),
     /// Make a recording on the simulated bench (WAV plus the true modes as JSON).
@@ -50,8 +49,6 @@ pub enum Command {
     Ports,
     /// List sound-card inputs (needs the audio feature).
     Devices,
-    /// Benchmarks: speed and memory, decoder throughput, accuracy, app latency.
-    Bench(bench::BenchArgs),
 }
 
 pub fn run(cli: Cli) -> Result<()> {
@@ -64,7 +61,6 @@ pub fn run(cli: Cli) -> Result<()> {
         Some(Command::Amend(a)) => amend::run(&a),
         Some(Command::Ports) => ports::ports(),
         Some(Command::Devices) => ports::devices(),
-        Some(Command::Bench(a)) => bench::run(&a),
         None => {
             // No command: the app on the simulated bench, with every default.
             #[derive(Parser)]

@@ -31,16 +31,16 @@ pub struct SimulateArgs {
     #[arg(long, value_enum)]
     pub tip: Option<Tip>,
     /// Nominal peak tap force in N.
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", value_parser = super::args::parse_positive)]
     pub force: Option<f64>,
     /// Multiply every sensor's noise by this factor.
-    #[arg(long, default_value_t = 1.0, value_name = "X")]
+    #[arg(long, default_value_t = 1.0, value_name = "X", value_parser = super::args::parse_non_negative)]
     pub noise: f64,
     /// Chance (0..1) that a tap bounces into a double hit.
-    #[arg(long, value_name = "P")]
+    #[arg(long, value_name = "P", value_parser = super::args::parse_probability)]
     pub double_hits: Option<f64>,
     /// Add mains hum at this frequency (Hz) on the response channels.
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", value_parser = super::args::parse_positive)]
     pub hum: Option<f64>,
     /// Drop the force channel (a response-only test).
     #[arg(long)]
@@ -64,7 +64,7 @@ pub fn plan_from(a: &SimulateArgs) -> Result<BenchPlan> {
         p.hammer.peak_n = f;
     }
     if let Some(d) = a.double_hits {
-        p.hammer.double_hit_chance = d.clamp(0.0, 1.0);
+        p.hammer.double_hit_chance = d;
     }
     if let Some(h) = a.hum {
         p.hum = Some(crate::source::simulator::HumPlan {
@@ -73,7 +73,7 @@ pub fn plan_from(a: &SimulateArgs) -> Result<BenchPlan> {
         });
     }
     for s in &mut p.sensors {
-        s.noise_rms *= a.noise.max(0.0);
+        s.noise_rms *= a.noise;
     }
     if a.no_force {
         p.sensors.retain(|s| s.role != Role::Force);

@@ -13,38 +13,53 @@ use std::path::PathBuf;
 #[derive(Debug, Clone, Args)]
 pub struct SourceArgs {
     /// Serial port of an accelerometer streamer (protocol: firmware-notes/protocol.md).
-    #[arg(long, value_name = "PATH", group = "src")]
+    #[arg(long, value_name = "PATH", group = "src", help_heading = "Source")]
     pub serial: Option<String>,
     /// Baud rate for --serial (native USB ports ignore it).
-    #[arg(long, default_value_t = 921_600, value_name = "N")]
+    #[arg(
+        long,
+        default_value_t = 921_600,
+        value_name = "N",
+        help_heading = "Source"
+    )]
     pub baud: u32,
     /// For --serial devices that print bare numbers and no header: the columns of each line,
     /// e.g. `t@us,force,accel_z`; a column marked @us or @ms is a timestamp (the rate is then
     /// measured and samples are placed by time). Fields may be separated by commas,
     /// semicolons, tabs or spaces.
-    #[arg(long, value_name = "NAMES", requires = "serial")]
+    #[arg(
+        long,
+        value_name = "NAMES",
+        requires = "serial",
+        help_heading = "Source"
+    )]
     pub columns: Option<String>,
     /// Sample rate of a headerless stream, Hz: needed without a timestamp column (then it is
     /// trusted as given); with one it sets the grid and the measured rate is reported.
-    #[arg(long, value_name = "HZ", requires = "columns")]
+    #[arg(long, value_name = "HZ", requires = "columns", help_heading = "Source")]
     pub rate: Option<f64>,
     /// Sound-card input (optionally its name; see `tapmodes devices`). Needs the audio feature.
-    #[arg(long, value_name = "NAME", num_args = 0..=1, default_missing_value = "", group = "src")]
+    #[arg(long, value_name = "NAME", num_args = 0..=1, default_missing_value = "", group = "src", help_heading = "Source")]
     pub audio: Option<String>,
     /// Sample rate to ask of the sound card, Hz.
-    #[arg(long, default_value_t = 48_000, value_name = "HZ")]
+    #[arg(
+        long,
+        default_value_t = 48_000,
+        value_name = "HZ",
+        help_heading = "Source"
+    )]
     pub audio_rate: u32,
     /// Replay a WAV recording as if it were live.
-    #[arg(long, value_name = "FILE.wav", group = "src")]
+    #[arg(long, value_name = "FILE.wav", group = "src", help_heading = "Source")]
     pub replay: Option<PathBuf>,
     /// The simulated bench (optionally a preset; see `tapmodes simulate --list`).
-    #[arg(long, value_name = "PRESET", num_args = 0..=1, default_missing_value = "tm9-arm-solid", group = "src")]
+    #[arg(long, value_name = "PRESET", num_args = 0..=1, default_missing_value = "tm9-arm-solid", group = "src", help_heading = "Source")]
     pub demo: Option<String>,
     /// Seed of the simulated bench.
-    #[arg(long, default_value_t = 1, value_name = "N")]
+    #[arg(long, default_value_t = 1, value_name = "N", help_heading = "Source")]
     pub seed: u64,
     /// Replay and simulate as fast as possible instead of in real time.
-    #[arg(long)]
+    #[arg(long, help_heading = "Source")]
     pub fast: bool,
 }
 
@@ -56,11 +71,6 @@ pub struct Opened {
 }
 
 impl SourceArgs {
-    pub fn is_demo(&self) -> bool {
-        self.demo.is_some()
-            || (self.serial.is_none() && self.audio.is_none() && self.replay.is_none())
-    }
-
     /// Open the chosen source (the simulated bench when none is chosen).
     pub fn open(&self, ch: &ChannelArgs, auto_taps: bool) -> Result<Opened> {
         let choice: RoleChoice = ch.role_choice();

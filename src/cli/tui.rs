@@ -10,24 +10,34 @@ use std::path::PathBuf;
 pub struct TuiArgs {
     #[command(flatten)]
     pub source: SourceArgs,
-    /// Folder the run files are saved in (created if missing).
-    #[arg(long, default_value = "runs", value_name = "DIR")]
-    pub out: PathBuf,
-    /// Variant label to start with (names the saved files).
-    #[arg(long, default_value = "variant", value_name = "LABEL")]
-    pub variant: String,
-    /// Simulated bench only: fire a tap every SECONDS (toggle in the app).
-    #[arg(long, value_name = "SECONDS")]
-    pub auto_tap: Option<f64>,
-    /// Saved runs to overlay and compare with from the start.
-    #[arg(long, value_name = "RUN.json")]
-    pub compare: Vec<PathBuf>,
     #[command(flatten)]
     pub channels: ChannelArgs,
     #[command(flatten)]
     pub analysis: AnalysisArgs,
     #[command(flatten)]
     pub drive: super::drive_args::DriveArgs,
+    /// Folder the run files are saved in (created if missing).
+    #[arg(
+        long,
+        default_value = "runs",
+        value_name = "DIR",
+        help_heading = "Outputs"
+    )]
+    pub out: PathBuf,
+    /// Variant label to start with (names the saved files).
+    #[arg(
+        long,
+        default_value = "variant",
+        value_name = "LABEL",
+        help_heading = "Outputs"
+    )]
+    pub variant: String,
+    /// Simulated bench only: fire a tap every SECONDS (toggle in the app).
+    #[arg(long, value_name = "SECONDS", help_heading = "Source", value_parser = super::args::parse_positive)]
+    pub auto_tap: Option<f64>,
+    /// Saved runs to overlay and compare with from the start.
+    #[arg(long, value_name = "RUN.json", help_heading = "Outputs")]
+    pub compare: Vec<PathBuf>,
 }
 
 pub fn run(a: &TuiArgs) -> Result<()> {
@@ -46,7 +56,7 @@ pub fn run(a: &TuiArgs) -> Result<()> {
         config,
         out_dir: a.out.clone(),
         variant: crate::run::validate::clean_text(&a.variant, false),
-        auto_tap_s: a.auto_tap.filter(|s| *s > 0.0),
+        auto_tap_s: a.auto_tap,
         demo: opened.demo,
         compare_with: a.compare.clone(),
         drive,

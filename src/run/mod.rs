@@ -1,11 +1,13 @@
 //! Run files: the recording (WAV), the mode list (JSON) and the FRF table (CSV) of a variant.
 
-pub mod atomic;
+pub(crate) mod atomic;
 pub mod compare;
 pub mod curve_read;
+pub mod naming;
 pub mod recording;
-pub mod safe_path;
-pub mod validate;
+pub mod reopen;
+pub(crate) mod safe_path;
+pub(crate) mod validate;
 
 use crate::error::{Context, Error, Result};
 use crate::hits::{CheckConfig, TriggerConfig};
@@ -65,8 +67,8 @@ pub struct RecordingRef {
     /// Path of the WAV relative to this JSON file.
     pub wav: String,
     pub frames: u64,
-    /// "float32 in channel units" or "int16 counts" etc.
-    pub encoding: String,
+    /// How the WAV holds its samples (readable text in the file).
+    pub encoding: recording::Encoding,
     /// Stretches lost before they reached the recording: (WAV frame where the stream
     /// jumps, frames lost). The WAV holds only what arrived; re-analysis skips ahead here.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
@@ -77,7 +79,7 @@ pub struct RecordingRef {
 #[derive(Debug, Clone, Copy)]
 pub struct RecordingNote<'a> {
     pub wav: &'a Path,
-    pub encoding: &'a str,
+    pub encoding: recording::Encoding,
     pub gaps: &'a [(u64, u64)],
 }
 
@@ -438,26 +440,63 @@ pub fn write_run_files(
     recording: Option<RecordingNote<'_>>,
     drive: Option<&crate::drive::Drive>,
 ) -> Result<RunFile> {
-    let result = analysis.result();
-    let mut run = RunFile::from_analysis(analysis, &result, variant);
-    if let Some(d) = drive {
-        crate::drive::annotate(&mut run, d, &result.spectra);
-    }
-    if let Some(r) = recording {
-        run.recording = Some(RecordingRef {
-            wav: relative_to(json_path, r.wav),
+    RunFiles::of(analysis, variant, drive).write(json_path, recording)
+}
+
+/// A run's JSON and CSV content computed from an analysis (the spectra and the mode search
+/// done), ready to be written elsewhere, later (the app's saver thread).
+#[derive(Debug, Clone)]
+pub struct RunFiles {
+    run: RunFile,
+    /// Frequencies and the curve for the CSV (absent before the first accepted hit).
+    curve: Option<(Vec<f64>, Curve)>,
+    /// Stream frames the analysis has seen (the recording's length).
+    frames: u64,
+}
+
+impl RunFiles {
+    /// Render the analysis' one result (computed once, see `pipeline::AnalysisResult`) and
+    /// the drive's band verdicts into run-file content.
+    pub fn of(
+        analysis: &Analysis,
+        variant: Variant,
+        drive: Option<&crate::drive::Drive>,
+    ) -> RunFiles {
+        let result = analysis.result();
+        let mut run = RunFile::from_analysis(analysis, &result, variant);
+        if let Some(d) = drive {
+            crate::drive::annotate(&mut run, d, &result.spectra);
+        }
+        let curve = result
+            .curve
+            .clone()
+            .map(|c| (result.spectra.freqs.clone(), c));
+        RunFiles {
+            run,
+            curve,
             frames: analysis.detector().position(),
-            encoding: r.encoding.to_string(),
-            gaps: r.gaps.to_vec(),
-        });
+        }
     }
-    if let Some(curve) = &result.curve {
-        let csv_path = json_path.with_extension("csv");
-        write_curve_csv(&csv_path, &result.spectra.freqs, curve, run.setup.band_hz)?;
-        run.frf_csv = Some(relative_to(json_path, &csv_path));
+
+    /// Write the JSON at `json_path` and the CSV beside it.
+    pub fn write(self, json_path: &Path, recording: Option<RecordingNote<'_>>) -> Result<RunFile> {
+        let mut run = self.run;
+        if let Some(r) = recording {
+            run.recording = Some(RecordingRef {
+                wav: relative_to(json_path, r.wav),
+                frames: self.frames,
+                encoding: r.encoding,
+                gaps: r.gaps.to_vec(),
+            });
+        }
+        if let Some((freqs, curve)) = &self.curve {
+            let csv_path = json_path.with_extension("csv");
+            write_curve_csv(&csv_path, freqs, curve, run.setup.band_hz)?;
+            run.frf_csv = Some(relative_to(json_path, &csv_path));
+        }
+        run.save(json_path)?;
+        Ok(run)
     }
-    run.save(json_path)?;
-    Ok(run)
 }
 
 #[cfg(test)]

@@ -16,14 +16,82 @@
 //! about 6 hours).
 
 use crate::error::{Context, Error, Result};
+use crate::run::naming;
 use crate::signal::{Block, StreamInfo};
 use std::io::BufWriter;
 use std::path::{Path, PathBuf};
 
-/// Encoding of a recording written as 32-bit float channel values.
-pub const FLOAT_ENCODING: &str = "float32 in channel units";
-/// Encoding of a recording written as 16-bit converter codes (value = code x scale).
-pub const COUNTS16_ENCODING: &str = "counts int16 (value = code x scale)";
+/// How a run's WAV holds its samples. Stored in the run file as readable text (the texts
+/// below are the ones every version has written, so old run files load unchanged).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(try_from = "String", into = "String")]
+pub enum Encoding {
+    /// 32-bit float channel values, written by this module.
+    Float32,
+    /// 16-bit converter codes, written by this module: value = code x scale.
+    Counts16,
+    /// A recording made elsewhere and analysed as it is, its samples already in channel
+    /// units (every scale 1).
+    AsStored,
+    /// A recording made elsewhere holding converter codes: value = code x scale.
+    Counts,
+}
+
+impl Encoding {
+    pub const ALL: [Encoding; 4] = [
+        Encoding::Float32,
+        Encoding::Counts16,
+        Encoding::AsStored,
+        Encoding::Counts,
+    ];
+
+    /// The text in the run file.
+    pub fn text(self) -> &'static str {
+        match self {
+            Encoding::Float32 => "float32 in channel units",
+            Encoding::Counts16 => "counts int16 (value = code x scale)",
+            Encoding::AsStored => "as stored",
+            Encoding::Counts => "counts",
+        }
+    }
+
+    /// True when the samples are converter codes that the channel scales turn into values.
+    pub fn is_counts(self) -> bool {
+        matches!(self, Encoding::Counts16 | Encoding::Counts)
+    }
+}
+
+impl std::fmt::Display for Encoding {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.text())
+    }
+}
+
+impl TryFrom<String> for Encoding {
+    type Error = String;
+    fn try_from(s: String) -> std::result::Result<Self, String> {
+        Encoding::ALL
+            .into_iter()
+            .find(|e| e.text() == s)
+            .ok_or_else(|| {
+                let known: Vec<String> = Encoding::ALL
+                    .iter()
+                    .map(|e| format!("'{}'", e.text()))
+                    .collect();
+                format!(
+                    "unknown recording encoding '{}' (known: {})",
+                    crate::run::validate::clean_text(&s, false),
+                    known.join(", ")
+                )
+            })
+    }
+}
+
+impl From<Encoding> for String {
+    fn from(e: Encoding) -> String {
+        e.text().to_string()
+    }
+}
 
 /// Largest WAV this writer makes: the RIFF size field (32 bits) minus room for the header.
 pub const MAX_WAV_BYTES: u64 = u32::MAX as u64 - 1024;
@@ -43,42 +111,12 @@ pub struct RecordingWriter {
 }
 
 impl RecordingWriter {
-    /// Create `DIR/STEM.wav` for a new run under the first stem from `label` that no other
-    /// run in `dir` has taken (`label`, `label-2`, ...). The WAV is created exclusively, so
-    /// two writers started together can never take the same name; a stem whose JSON already
-    /// exists is passed over.
+    /// Create `DIR/STEM.wav` for a new run under the stem [`naming::claim_stem`] gives
+    /// `label` (exclusive: two writers started together never share a name).
     pub fn create_fresh(dir: &Path, label: &str, info: &StreamInfo) -> Result<(Self, String)> {
-        let base = clean_stem(label);
-        for i in 1..10_000u32 {
-            let stem = if i == 1 {
-                base.clone()
-            } else {
-                format!("{base}-{i}")
-            };
-            let other = |ext: &str| std::fs::symlink_metadata(dir.join(format!("{stem}.{ext}")));
-            if other("json").is_ok() || other("csv").is_ok() {
-                continue;
-            }
-            let wav = dir.join(format!("{stem}.wav"));
-            match std::fs::OpenOptions::new()
-                .write(true)
-                .read(true)
-                .create_new(true)
-                .open(&wav)
-            {
-                Ok(file) => return Ok((Self::with_file(&wav, file, info)?, stem)),
-                Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => continue,
-                Err(e) => {
-                    return Err(
-                        Error::from(e).context(format!("cannot create '{}'", wav.display()))
-                    );
-                }
-            }
-        }
-        crate::fail!(
-            "every run name from '{base}' to '{base}-9999' is taken in '{}'",
-            dir.display()
-        )
+        let (stem, file) = naming::claim_stem(dir, label)?;
+        let wav = dir.join(format!("{stem}.wav"));
+        Ok((Self::with_file(&wav, file, info)?, stem))
     }
 
     /// Create (or replace) the recording at `path`.
@@ -128,11 +166,11 @@ impl RecordingWriter {
     }
 
     /// How the samples are stored, for the run file.
-    pub fn encoding(&self) -> &'static str {
+    pub fn encoding(&self) -> Encoding {
         if self.codes.is_some() {
-            COUNTS16_ENCODING
+            Encoding::Counts16
         } else {
-            FLOAT_ENCODING
+            Encoding::Float32
         }
     }
 
@@ -208,28 +246,6 @@ impl RecordingWriter {
     }
 }
 
-/// A file stem from a label: letters, digits, `-`, `_` and `.` kept, the rest `_`; never
-/// empty, never starting with a dot.
-pub fn clean_stem(label: &str) -> String {
-    let clean: String = label
-        .chars()
-        .take(100)
-        .map(|c| {
-            if c.is_ascii_alphanumeric() || "-_.".contains(c) {
-                c
-            } else {
-                '_'
-            }
-        })
-        .collect();
-    let clean = clean.trim_start_matches('.').to_string();
-    if clean.is_empty() {
-        "variant".to_string()
-    } else {
-        clean
-    }
-}
-
 /// Write a complete recording of raw integer counts (the simulator's converter output).
 pub fn write_counts_wav(path: &Path, fs: f64, bits: u16, channels: &[Vec<i32>]) -> Result<()> {
     let spec = hound::WavSpec {
@@ -298,5 +314,39 @@ mod tests {
         let wav = hound::WavReader::open(&path).expect("a valid WAV up to the limit");
         assert_eq!(wav.duration(), 2000);
         let _ = std::fs::remove_dir_all(&dir);
+    }
+
+    #[test]
+    fn encodings_read_back_as_written_and_unknown_text_is_refused() {
+        for e in Encoding::ALL {
+            let json = serde_json::to_string(&e).unwrap();
+            assert_eq!(
+                json,
+                format!("\"{}\"", e.text()),
+                "readable text in the file"
+            );
+            assert_eq!(serde_json::from_str::<Encoding>(&json).unwrap(), e);
+        }
+        let err = serde_json::from_str::<Encoding>("\"counts int24\"").unwrap_err();
+        assert!(
+            err.to_string()
+                .contains("unknown recording encoding 'counts int24'")
+        );
+        assert!(Encoding::Counts16.is_counts() && Encoding::Counts.is_counts());
+        assert!(!Encoding::Float32.is_counts() && !Encoding::AsStored.is_counts());
+    }
+
+    #[test]
+    fn the_schema_lists_every_encoding() {
+        let schema: serde_json::Value =
+            serde_json::from_str(include_str!("../../schema/run.schema.json")).unwrap();
+        let listed: Vec<&str> = schema["properties"]["recording"]["properties"]["encoding"]["enum"]
+            .as_array()
+            .expect("an enum of encodings in the schema")
+            .iter()
+            .map(|v| v.as_str().unwrap())
+            .collect();
+        let ours: Vec<&str> = Encoding::ALL.iter().map(|e| e.text()).collect();
+        assert_eq!(listed, ours);
     }
 }

@@ -2,7 +2,7 @@
 //! for tests, on a worker thread for the app) and runs the terminal loop.
 
 use super::Launch;
-use super::engine::{Cmd, Engine, EngineSetup, Inbox, Update, spawn_worker};
+use super::engine::{Cmd, Engine, EngineSetup, Inbox, Update, Worker, spawn_worker};
 use super::model::{Effect, Header, LoadedRun, Model, Msg, update};
 use super::view::view;
 use crate::error::{Error, Result};
@@ -17,7 +17,6 @@ use ratatui::buffer::Buffer;
 use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 use std::path::{Path, PathBuf};
 use std::sync::mpsc::{Receiver, RecvTimeoutError, Sender};
-use std::thread::JoinHandle;
 use std::time::{Duration, Instant};
 
 /// Shortest time between two frames (about 30 frames per second at most).
@@ -35,7 +34,7 @@ enum Link {
     /// The app: the engine runs on a worker thread fed by the acquisition thread.
     Threaded {
         cmds: Sender<(u64, Cmd)>,
-        worker: Option<JoinHandle<()>>,
+        worker: Worker,
     },
 }
 
@@ -120,10 +119,7 @@ impl App {
         let worker = spawn_worker(engine, feed, rx, inbox);
         let mut app = App {
             model,
-            link: Link::Threaded {
-                cmds: tx,
-                worker: Some(worker),
-            },
+            link: Link::Threaded { cmds: tx, worker },
             compare_with: launch.compare_with,
         };
         app.load_initial();
@@ -269,11 +265,14 @@ impl App {
     pub fn engine_alive(&self) -> bool {
         match &self.link {
             Link::Inline { .. } => true,
-            Link::Threaded { worker, .. } => worker.as_ref().is_some_and(|w| !w.is_finished()),
+            Link::Threaded { worker, .. } => worker.alive(),
         }
     }
 
-    /// Stop the engine: the recording is closed (a save, if asked, was sent before).
+    /// Stop the engine: acquisition stops at once; the recording is closed after every
+    /// block taken so far is analysed and every save asked for (sent before) is written.
+    /// Threaded, this returns as soon as the acquisition has stopped: `wait_for_files`
+    /// waits for the rest.
     pub fn shutdown(&mut self) {
         let seq = self.model.sent_seq + 1;
         match &mut self.link {
@@ -282,10 +281,23 @@ impl App {
             }
             Link::Threaded { cmds, worker } => {
                 let _ = cmds.send((seq, Cmd::Shutdown));
-                if let Some(w) = worker.take() {
-                    let _ = w.join();
-                }
+                worker.stop_pump();
             }
+        }
+    }
+
+    /// Threaded: whether analysis or file writing is still finishing after `shutdown`.
+    pub fn finishing(&self) -> bool {
+        match &self.link {
+            Link::Inline { .. } => false,
+            Link::Threaded { worker, .. } => worker.finishing(),
+        }
+    }
+
+    /// Wait until everything taken is analysed and written and the recording is closed.
+    pub fn wait_for_files(&mut self) {
+        if let Link::Threaded { worker, .. } = &mut self.link {
+            worker.wait();
         }
     }
 }

@@ -4,8 +4,8 @@
 
 use super::engine::AnalysisSnap;
 use super::model::Model;
-use crate::drive::{BandVerdict, Verdict};
-use ratatui::Frame;
+use crate::drive::{BandVerdict, Drive, Verdict};
+use ratatui::buffer::Buffer;
 use ratatui::layout::Rect;
 use ratatui::style::{Color, Modifier, Style};
 use ratatui::text::{Line, Span};
@@ -33,9 +33,14 @@ pub struct FreqAxis {
 impl FreqAxis {
     /// The model's view, logarithmic when chosen and the view lies above [`LOG_FLOOR_HZ`].
     pub fn of(m: &Model) -> FreqAxis {
-        let (lo, hi) = m.view_hz;
+        FreqAxis::new(m.view_hz, m.log_freq)
+    }
+
+    /// A view `(lo, hi)` in Hz, logarithmic when asked and the view lies above
+    /// [`LOG_FLOOR_HZ`].
+    pub fn new((lo, hi): (f64, f64), log: bool) -> FreqAxis {
         let log_lo = lo.max(LOG_FLOOR_HZ);
-        if m.log_freq && hi > log_lo {
+        if log && hi > log_lo {
             FreqAxis {
                 lo_hz: log_lo,
                 hi_hz: hi,
@@ -85,12 +90,11 @@ impl FreqAxis {
 }
 
 /// Shade each band's columns of `plot` and write its name on its own row at the top.
-pub fn shade_bands(m: &Model, f: &mut Frame, plot: Rect, axis: &FreqAxis) {
-    let Some(drive) = &m.drive else { return };
+pub fn shade_bands(drive: Option<&Drive>, buf: &mut Buffer, plot: Rect, axis: &FreqAxis) {
+    let Some(drive) = drive else { return };
     if plot.width == 0 || plot.height == 0 {
         return;
     }
-    let buf = f.buffer_mut();
     for (i, b) in drive.bands().bands.iter().enumerate() {
         let (lo, hi) = b.hz;
         if hi < axis.lo_hz || lo > axis.hi_hz {

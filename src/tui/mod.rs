@@ -1,15 +1,15 @@
 //! The terminal app: model / update / view over the shared pipeline.
 //!
 //! - `engine`: owns the analysis and the files; runs on a worker thread in the app.
-//! - `model`: state, key map, `update(&mut Model, Msg) -> Vec<Effect>`.
+//! - `keys`: the operator's actions, the key map, help and safety text.
+//! - `model`: state, `update(&mut Model, Msg) -> Vec<Effect>`.
 //! - `view`: `view(&Model, &mut Frame)`, a pure drawing function.
 //! - `app`: carries out effects, links model and engine, runs the terminal loop.
-//! - `bench`: latency, frame-rate and idle-CPU measurements.
 
 pub mod app;
-pub mod bench;
 pub mod drive_view;
 pub mod engine;
+pub mod keys;
 pub mod model;
 pub mod view;
 
@@ -105,6 +105,11 @@ pub fn run(launch: Launch) -> Result<()> {
         app::drive(&mut app, &mut terminal, &rx, |_, _| false)
     };
     app.shutdown();
+    // The screen is gone at once; files still being written are finished before exit.
+    if app.finishing() {
+        eprintln!("tapmodes: finishing the analysis and the run files...");
+    }
+    app.wait_for_files();
     result
 }
 

@@ -15,10 +15,7 @@ use tapmodes::tui::{App, Launch};
 const SIZES: [(u16, u16); 2] = [(80, 24), (160, 48)];
 
 fn scratch(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tapmodes-tui-view-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
+    crate::common::temp_dir(&format!("tui-view-{name}"))
 }
 
 fn demo(preset_name: &str, seconds: f64, dir: &std::path::Path) -> App {

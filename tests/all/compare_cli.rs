@@ -1,9 +1,7 @@
 //! The `compare` and `amend` commands end to end on the demo recordings: output contract,
 //! mass round trip, and one clear sentence for bad input.
 
-mod common;
-
-use common::{tapmodes, temp_dir};
+use crate::common::{tapmodes, temp_dir};
 use std::path::PathBuf;
 
 fn rec(name: &str) -> String {

@@ -4,20 +4,20 @@
 //! time at 160x48 while a 48 kHz stereo source streams in real time, (c) process CPU
 //! while listening to the real-time demo bench with nothing happening.
 
-use super::Launch;
-use super::app::{App, buffer_text, drive};
-use super::engine::Inbox;
-use crate::error::Result;
-use crate::pipeline::{Analysis, AnalysisConfig};
-use crate::signal::{Block, RoleChoice, StreamInfo};
-use crate::source::Source;
-use crate::source::simulator::presets::preset;
-use crate::source::simulator::{BenchPlan, Simulator};
 use ratatui::Terminal;
 use ratatui::backend::TestBackend;
 use std::path::PathBuf;
 use std::sync::mpsc::{self, Receiver, Sender};
 use std::time::{Duration, Instant};
+use tapmodes::error::Result;
+use tapmodes::pipeline::{Analysis, AnalysisConfig};
+use tapmodes::signal::{Block, RoleChoice, StreamInfo};
+use tapmodes::source::Source;
+use tapmodes::source::simulator::presets::preset;
+use tapmodes::source::simulator::{BenchPlan, Simulator};
+use tapmodes::tui::Launch;
+use tapmodes::tui::app::{App, buffer_text, drive};
+use tapmodes::tui::engine::Inbox;
 
 /// A source fed by hand through a channel (ends when the sender is dropped).
 pub struct ChannelSource {
@@ -132,6 +132,7 @@ fn latency() -> Result<String> {
     }
     drop(feed);
     app.shutdown();
+    app.wait_for_files();
     let _ = std::fs::remove_dir_all(&dir);
     let n = samples_ms.len();
     let (min, med, max, _) = stats(&mut samples_ms);
@@ -168,13 +169,14 @@ fn render_rate() -> Result<String> {
             app.inbox_msg(m);
         }
         let t = Instant::now();
-        term.draw(|f| super::view::view(&app.model, f))
-            .map_err(|e| crate::error::Error::new(e.to_string()))?;
+        term.draw(|f| tapmodes::tui::view::view(&app.model, f))
+            .map_err(|e| tapmodes::error::Error::new(e.to_string()))?;
         draw_ms.push(t.elapsed().as_secs_f64() * 1000.0);
     }
     let overrun = app.model.live.as_ref().map_or(0, |l| l.overrun_frames);
     let hits = app.model.counts().1;
     app.shutdown();
+    app.wait_for_files();
     let _ = std::fs::remove_dir_all(&dir);
     let n = draw_ms.len();
     let (min, med, max, mean) = stats(&mut draw_ms);
@@ -205,6 +207,7 @@ fn idle_cpu() -> Result<String> {
     })?;
     let (c1, wall) = (process_cpu_s(), w0.elapsed().as_secs_f64());
     app.shutdown();
+    app.wait_for_files();
     let _ = std::fs::remove_dir_all(&dir);
     Ok(match (c0, c1) {
         (Some(a), Some(b)) => format!(

@@ -3,13 +3,11 @@
 //! that parsing never panics and every error is one sentence. A short run is part of
 //! `cargo test`; the long one is ignored by default:
 //!
-//! `TAPMODES_FUZZ_SECS=200 cargo test --release --test hostile_fuzz -- --ignored --nocapture`
+//! `TAPMODES_FUZZ_SECS=200 cargo test --release --test all hostile_fuzz::fuzz_long -- --ignored --nocapture`
 //!
 //! runs each target for that many seconds (three targets: 10 minutes at 200).
 
-mod hostile;
-
-use hostile::{Rng, mutate, pcm, wav};
+use crate::hostile::{Rng, mutate, pcm, wav};
 use std::time::{Duration, Instant};
 use tapmodes::run::RunFile;
 use tapmodes::source::Source;

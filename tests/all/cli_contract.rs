@@ -1,9 +1,7 @@
 //! The command-line contract: `analyze` on WAVs of any common layout, and one clear
 //! sentence with a non-zero exit for every kind of bad input.
 
-mod common;
-
-use common::*;
+use crate::common::*;
 use tapmodes::source::simulator::presets::preset;
 
 fn sim_counts(seconds: f64) -> (Vec<Vec<f64>>, u32) {

@@ -2,9 +2,7 @@
 //! serial protocol (firmware-notes/protocol.md) and `tapmodes capture` reads the slave.
 #![cfg(unix)]
 
-mod common;
-
-use common::*;
+use crate::common::*;
 use std::io::{Read, Write};
 use std::time::Duration;
 use tapmodes::rng::Rng;

@@ -84,10 +84,7 @@ impl Drop for Session {
 }
 
 fn scratch() -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tapmodes-tui-tmux-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
+    crate::common::temp_dir("tui-tmux")
 }
 
 #[test]

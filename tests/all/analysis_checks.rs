@@ -1,9 +1,7 @@
 //! The analysis core checked against outside results: textbook SDOF relations, scipy's
 //! spectra, the exponential-window correction, and Euler-Bernoulli beam eigenvalues.
 
-mod common;
-
-use common::*;
+use crate::common::*;
 use realfft::num_complex::Complex64;
 use tapmodes::modes::{ModeConfig, find_modes};
 use tapmodes::pipeline::{Analysis, AnalysisConfig};

@@ -3,11 +3,8 @@
 //! operator's verdicts, label and note; SIGINT, SIGTERM and SIGHUP end a capture quickly
 //! with the WAV and the JSON consistent.
 
-mod common;
-mod hostile;
-
-use common::{simulate, temp_dir};
-use hostile::{pcm, wav};
+use crate::common::{simulate, temp_dir};
+use crate::hostile::{pcm, wav};
 use std::path::Path;
 use std::process::Command;
 use std::time::{Duration, Instant};

@@ -1,13 +1,10 @@
 //! The standing bad-input suite: malformed WAVs and run files, generated here from one good
-//! simulated recording (see `hostile/mod.rs`), each run through the real binary with its
+//! simulated recording (see `hostile.rs`), each run through the real binary with its
 //! expected outcome: one clear sentence and exit 1, or a documented acceptance. Nothing may
 //! panic, hang or allocate without bound. Serial streams are in `hostile_serial.rs`.
 
-mod common;
-mod hostile;
-
-use common::{simulate, temp_dir};
-use hostile::*;
+use crate::common::{simulate, temp_dir};
+use crate::hostile::*;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 use tapmodes::source::simulator::presets::preset;

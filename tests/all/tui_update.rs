@@ -10,10 +10,7 @@ use tapmodes::tui::model::{Action, Effect, Mode, Msg, action_for, scale_level, u
 use tapmodes::tui::{App, Launch};
 
 fn scratch(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tapmodes-tui-upd-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
+    crate::common::temp_dir(&format!("tui-upd-{name}"))
 }
 
 /// The demo arm with taps on the simulator's schedule (0.8 s, then every ~2.5 s).
@@ -257,7 +254,7 @@ fn save_writes_wav_json_and_csv() {
     // The simulated bench has 16-bit converters: the codes are stored, as the run file says.
     assert_eq!(wav.spec().sample_format, hound::SampleFormat::Int);
     assert_eq!(wav.spec().bits_per_sample, 16);
-    assert_eq!(rec.encoding, tapmodes::run::recording::COUNTS16_ENCODING);
+    assert_eq!(rec.encoding, tapmodes::run::recording::Encoding::Counts16);
     assert_eq!(wav.duration() as u64, rec.frames);
     assert_eq!(rec.frames, 52_000, "6.5 s at 8 kHz");
     let curve = tapmodes::run::curve_read::read_curve_csv(&dir.join("tm9-arm-solid.csv")).unwrap();

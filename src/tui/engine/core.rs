@@ -1,0 +1,413 @@
+//! The analysis side of the app: owns the `Analysis`, turns blocks and commands into
+//! snapshots for the screen, and prepares saves for the saver (which owns the files).
+
+use super::messages::*;
+use super::saver::{Job, Saver, SaverCore, SaverState};
+use crate::error::Result;
+use crate::pipeline::{Analysis, AnalysisConfig};
+use crate::run::{RunFile, RunFiles, Variant};
+use crate::signal::{Block, Roles, StreamInfo};
+use crate::source::LinkCounters;
+use crate::spectra::Basis;
+use std::collections::VecDeque;
+use std::path::PathBuf;
+use std::sync::mpsc::Sender;
+use std::sync::{Arc, Mutex};
+
+/// The recording is flushed at least this often (stream seconds) besides every hit.
+const FLUSH_EVERY_S: f64 = 5.0;
+
+/// What the engine is built from.
+#[derive(Debug, Clone)]
+pub struct EngineSetup {
+    pub info: StreamInfo,
+    pub roles: Roles,
+    pub config: AnalysisConfig,
+    pub out_dir: PathBuf,
+    pub label: String,
+    /// Bands for the modes' verdicts and the mount's isolation (see `drive`).
+    pub drive: Option<crate::drive::Drive>,
+}
+
+struct Tail {
+    channel: usize,
+    ring: VecDeque<f64>,
+    cap: usize,
+}
+
+/// Owns the analysis and the files of one session.
+pub struct Engine {
+    setup: EngineSetup,
+    analysis: Analysis,
+    label: String,
+    saver: Saver,
+    /// The saver's stem, recorded frames and last written generation.
+    saved: Arc<Mutex<SaverState>>,
+    /// Counts changes to what a save would write (new hits, verdicts, settings, label).
+    generation: u64,
+    armed: bool,
+    tails: Vec<Tail>,
+    version: u64,
+    applied_seq: u64,
+    overrun_frames: u64,
+    link: Option<LinkCounters>,
+    last_flush: u64,
+    /// Stream position (the analysis skips blocks while disarmed).
+    position: u64,
+    /// New hits are waiting to be saved.
+    autosave_due: bool,
+}
+
+impl Engine {
+    /// Create the engine and start this run's recording in the output folder.
+    pub fn new(setup: EngineSetup) -> Result<Engine> {
+        let analysis = Analysis::new(&setup.info, setup.roles, setup.config.clone(), true)?;
+        std::fs::create_dir_all(&setup.out_dir).map_err(|e| {
+            crate::error::Error::from(e).context(format!(
+                "cannot create the output folder '{}'",
+                setup.out_dir.display()
+            ))
+        })?;
+        let core = SaverCore::start(&setup.out_dir, &setup.info, &setup.label)?;
+        let saved = core.state();
+        let fs = setup.info.sample_rate;
+        let mut shown = vec![analysis.detector().trigger_config().channel];
+        if !shown.contains(&setup.roles.response) {
+            shown.push(setup.roles.response);
+        }
+        let cap = (TAIL_S * fs).round() as usize;
+        let tails = shown
+            .into_iter()
+            .map(|channel| Tail {
+                channel,
+                ring: VecDeque::with_capacity(cap + 1),
+                cap,
+            })
+            .collect();
+        Ok(Engine {
+            label: setup.label.clone(),
+            setup,
+            analysis,
+            saver: Saver::Inline(Box::new(core)),
+            saved,
+            generation: 0,
+            armed: true,
+            tails,
+            version: 0,
+            applied_seq: 0,
+            overrun_frames: 0,
+            link: None,
+            last_flush: 0,
+            position: 0,
+            autosave_due: false,
+        })
+    }
+
+    pub fn analysis(&self) -> &Analysis {
+        &self.analysis
+    }
+
+    /// Move the file side to its own thread (the app); its updates go to `out`.
+    pub(crate) fn detach_saver(&mut self, out: Sender<Inbox>) {
+        self.saver.detach(out);
+    }
+
+    /// Tests: make every run-file write take at least `d` (a slow disk).
+    #[cfg(test)]
+    pub(crate) fn slow_saves(&mut self, d: std::time::Duration) {
+        if let Saver::Inline(core) = &mut self.saver {
+            core.slow_writes = Some(d);
+        }
+    }
+
+    fn saver_state(&self) -> SaverState {
+        self.saved.lock().unwrap_or_else(|p| p.into_inner()).clone()
+    }
+
+    /// Something would be written by a save that is not on disk yet.
+    fn dirty(&self) -> bool {
+        self.saver_state().written_generation < self.generation
+    }
+
+    /// Note a change to what a save would write.
+    fn changed(&mut self) {
+        self.generation += 1;
+    }
+
+    pub fn set_health(&mut self, overrun_frames: u64, link: Option<LinkCounters>) {
+        self.overrun_frames = overrun_frames;
+        self.link = link;
+    }
+
+    /// Feed one block: record it, update the live view, search it for hits (when armed).
+    pub fn push(&mut self, block: &Block) -> Vec<Update> {
+        let mut out = self.saver.submit(Job::Append(block.clone()));
+        for t in &mut self.tails {
+            if let Some(ch) = block.channels.get(t.channel) {
+                for &x in ch {
+                    if t.ring.len() == t.cap {
+                        t.ring.pop_front();
+                    }
+                    t.ring.push_back(x);
+                }
+            }
+        }
+        self.position = block.start + block.len() as u64;
+        let new = if self.armed {
+            self.analysis.push(block)
+        } else {
+            self.analysis.push_disarmed(block)
+        };
+        if new > 0 {
+            self.changed();
+            // Every new hit is saved as it lands (see `autosave`): the WAV is flushed
+            // and the run files written, so nothing is lost if the app stops. The
+            // screen gets the hit first.
+            self.autosave_due = true;
+            out.push(Update::Analysis(Arc::new(self.snapshot())));
+        }
+        let fs = self.setup.info.sample_rate;
+        if self.position.saturating_sub(self.last_flush) as f64 >= FLUSH_EVERY_S * fs {
+            self.flush_recording(&mut out);
+        }
+        out
+    }
+
+    /// Save the run files if hits arrived since the last save (call after handing the
+    /// hit's snapshot to the screen).
+    pub fn autosave(&mut self) -> Vec<Update> {
+        if std::mem::take(&mut self.autosave_due) {
+            self.save(true)
+        } else {
+            Vec::new()
+        }
+    }
+
+    pub(crate) fn flush_recording(&mut self, out: &mut Vec<Update>) {
+        self.last_flush = self.position;
+        out.extend(self.saver.submit(Job::Flush));
+    }
+
+    /// Apply a command; `seq` is echoed back in the live snapshots.
+    pub fn command(&mut self, seq: u64, cmd: Cmd) -> Vec<Update> {
+        let mut out = Vec::new();
+        let has_hits = !self.analysis.hits().is_empty();
+        match cmd {
+            Cmd::Decide { index, accept } => {
+                let before = self.analysis.hits().get(index).map(|h| h.verdict);
+                if self.analysis.decide(index, accept) {
+                    if before != self.analysis.hits().get(index).map(|h| h.verdict) {
+                        self.changed();
+                        out.push(Update::Analysis(Arc::new(self.snapshot())));
+                    }
+                } else {
+                    out.push(Update::Problem(format!("there is no tap #{}", index + 1)));
+                }
+            }
+            Cmd::SetLevel(level) => {
+                self.analysis.set_trigger_level(level);
+                if has_hits {
+                    self.changed();
+                }
+            }
+            Cmd::SetEstimator(e) => {
+                self.analysis.set_estimator(e);
+                if has_hits {
+                    self.changed();
+                }
+                out.push(Update::Analysis(Arc::new(self.snapshot())));
+            }
+            Cmd::SetBasis(b) => {
+                let b = match b {
+                    Basis::Frf(_) => Basis::Frf(self.analysis.config().estimator),
+                    other => other,
+                };
+                self.analysis.set_basis(Some(b));
+                if has_hits {
+                    self.changed();
+                }
+                out.push(Update::Analysis(Arc::new(self.snapshot())));
+            }
+            Cmd::SetArmed(a) => self.armed = a,
+            Cmd::SetLabel(label) => {
+                let label = label.trim().to_string();
+                if !label.is_empty() && label != self.label {
+                    self.label = label;
+                    if has_hits {
+                        self.changed();
+                    }
+                    let files = Box::new(self.run_files());
+                    out.extend(self.saver.submit(Job::Rename {
+                        label: self.label.clone(),
+                        files,
+                        generation: self.generation,
+                    }));
+                    out.push(Update::Analysis(Arc::new(self.snapshot())));
+                }
+            }
+            Cmd::Save => out.extend(self.save(false)),
+            Cmd::Tap => {}
+            Cmd::NewRun => match self.new_run(&mut out) {
+                Ok(()) => out.push(Update::Analysis(Arc::new(self.snapshot()))),
+                Err(e) => out.push(Update::Problem(format!("cannot start a new run: {e}"))),
+            },
+            Cmd::Shutdown => out.extend(self.finish()),
+        }
+        self.applied_seq = self.applied_seq.max(seq);
+        out
+    }
+
+    fn new_run(&mut self, out: &mut Vec<Update>) -> Result<()> {
+        let mut cfg = self.setup.config.clone();
+        cfg.trigger.level = self.analysis.config().trigger.level;
+        cfg.estimator = self.analysis.config().estimator;
+        cfg.basis = self.analysis.config().basis;
+        self.analysis = Analysis::new(&self.setup.info, self.setup.roles, cfg, true)?;
+        out.extend(self.saver.submit(Job::NewRecording(self.label.clone())));
+        // The new run has nothing to save yet.
+        self.changed();
+        let mut s = self.saved.lock().unwrap_or_else(|p| p.into_inner());
+        s.written_generation = s.written_generation.max(self.generation);
+        Ok(())
+    }
+
+    /// What a save writes now (the mode search is done here, not in the saver).
+    fn run_files(&self) -> RunFiles {
+        let variant = Variant {
+            label: self.label.clone(),
+            note: format!(
+                "recorded with the terminal app from {}",
+                self.setup.info.source
+            ),
+            mass_g: None,
+        };
+        RunFiles::of(&self.analysis, variant, self.setup.drive.as_ref())
+    }
+
+    /// Flush the recording and write the run files (JSON + CSV). Inline, the files are
+    /// on disk when this returns; with the saver on its thread they are queued.
+    pub fn save(&mut self, auto: bool) -> Vec<Update> {
+        let mut out = Vec::new();
+        self.last_flush = self.position;
+        let files = Box::new(self.run_files());
+        out.extend(self.saver.submit(Job::Write {
+            files,
+            generation: self.generation,
+            auto,
+        }));
+        out
+    }
+
+    /// Close the recording (valid WAV with its final header) after everything queued.
+    pub fn finish(&mut self) -> Vec<Update> {
+        self.saver.finish()
+    }
+
+    pub fn live(&self) -> LiveSnap {
+        let saved = self.saver_state();
+        let fs = self.setup.info.sample_rate;
+        let d = self.analysis.detector();
+        let traces = self
+            .tails
+            .iter()
+            .map(|t| {
+                let base = d
+                    .baseline(t.channel)
+                    .unwrap_or_else(|| t.ring.iter().sum::<f64>() / t.ring.len().max(1) as f64);
+                let x: Vec<f64> = t.ring.iter().map(|v| v - base).collect();
+                let c = &self.setup.info.channels[t.channel];
+                Trace {
+                    channel: t.channel,
+                    name: c.name.clone(),
+                    unit: c.unit.clone(),
+                    envelope: Envelope::of(&x, TAIL_BUCKETS, fs),
+                }
+            })
+            .collect();
+        LiveSnap {
+            position: self.position,
+            trigger_channel: d.trigger_config().channel,
+            threshold: d.threshold(),
+            traces,
+            armed: self.armed,
+            overrun_frames: self.overrun_frames,
+            link: self.link,
+            unsaved: self.dirty() && !self.analysis.hits().is_empty(),
+            applied_seq: self.applied_seq,
+            recorded_frames: saved.recorded_frames,
+            stem: saved.stem,
+        }
+    }
+
+    pub fn snapshot(&mut self) -> AnalysisSnap {
+        self.version += 1;
+        let a = &self.analysis;
+        // The pipeline's one result: the save that follows renders the same value.
+        let result = a.result();
+        let spectra = &result.spectra;
+        let modes = result.modes().to_vec();
+        let basis = result.basis;
+        let curve = result.curve.clone().map(|c| CurveSnap {
+            basis,
+            db: c
+                .magnitude
+                .iter()
+                .map(|m| 20.0 * m.max(1e-300).log10())
+                .collect(),
+            magnitude: c.magnitude,
+            coherence: c.coherence,
+            unit: c.unit,
+            freqs: spectra.freqs.clone(),
+        });
+        let fs = self.setup.info.sample_rate;
+        let roles = a.roles();
+        let info = a.info();
+        let last_hit = a.last_hit().map(|h| {
+            let pre = a.detector().pretrigger_len();
+            let force = roles.force.map(|f| {
+                let end = (pre + (FORCE_VIEW_S * fs) as usize).min(h.record[f].len());
+                Envelope::of(&h.record[f][..end], HIT_BUCKETS, fs)
+            });
+            // The verdict may have changed since (operator decision): read it from the list.
+            let summary = a.hits().iter().find(|s| s.number == h.number);
+            HitView {
+                number: h.number,
+                verdict: summary.map_or(h.verdict, |s| s.verdict),
+                reason: summary.map_or(h.reason.clone(), |s| s.reason.clone()),
+                peak_force: h.peak_force,
+                peak_response: h.peak_response,
+                force,
+                response: Envelope::of(&h.record[roles.response], HIT_BUCKETS, fs),
+                pretrigger_s: pre as f64 / fs,
+                force_unit: roles
+                    .force
+                    .map_or(String::new(), |f| info.channels[f].unit.clone()),
+                response_unit: info.channels[roles.response].unit.clone(),
+            }
+        });
+        let mut run = RunFile::from_analysis(
+            a,
+            &result,
+            Variant {
+                label: self.label.clone(),
+                note: String::new(),
+                mass_g: None,
+            },
+        );
+        if let Some(d) = &self.setup.drive {
+            crate::drive::annotate(&mut run, d, spectra);
+        }
+        AnalysisSnap {
+            version: self.version,
+            hits: a.hits().to_vec(),
+            accepted: a.accepted(),
+            last_hit,
+            basis,
+            estimator: a.config().estimator,
+            curve,
+            modes,
+            resolution_hz: spectra.resolution_hz,
+            run,
+        }
+    }
+}

@@ -1,0 +1,203 @@
+//! What the screen and the engine say to each other: commands, snapshots, updates.
+
+use crate::hits::{TriggerLevel, Verdict};
+use crate::modes::Mode;
+use crate::pipeline::HitSummary;
+use crate::run::RunFile;
+use crate::source::LinkCounters;
+use crate::spectra::{Basis, Estimator};
+use std::path::PathBuf;
+use std::sync::Arc;
+use std::time::Duration;
+
+/// Seconds of live signal kept for the screen.
+pub const TAIL_S: f64 = 2.0;
+/// Columns of min/max pairs the live trace is reduced to.
+pub const TAIL_BUCKETS: usize = 320;
+/// Columns of min/max pairs a hit record is reduced to.
+pub const HIT_BUCKETS: usize = 320;
+/// How much of the force pulse the last-hit panel shows after the trigger.
+pub const FORCE_VIEW_S: f64 = 0.02;
+
+/// What the screen asks of the engine.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Cmd {
+    /// Operator verdict on hit `index` (0-based).
+    Decide {
+        index: usize,
+        accept: bool,
+    },
+    SetLevel(TriggerLevel),
+    SetEstimator(Estimator),
+    SetBasis(Basis),
+    /// While disarmed, blocks are recorded but not searched for hits.
+    SetArmed(bool),
+    SetLabel(String),
+    Save,
+    /// Fire a simulated tap (handled by whoever owns the source).
+    Tap,
+    /// Close this run's files and start a fresh analysis and recording.
+    NewRun,
+    Shutdown,
+}
+
+impl Cmd {
+    /// Whether the command changes what a save would write.
+    pub fn changes_run(&self) -> bool {
+        matches!(
+            self,
+            Cmd::Decide { .. }
+                | Cmd::SetLevel(_)
+                | Cmd::SetEstimator(_)
+                | Cmd::SetBasis(_)
+                | Cmd::SetLabel(_)
+                | Cmd::Save
+        )
+    }
+}
+
+/// A signal reduced to min/max pairs, one per screen column or so.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Envelope {
+    pub min: Vec<f64>,
+    pub max: Vec<f64>,
+    /// Time the envelope spans, seconds.
+    pub span_s: f64,
+}
+
+impl Envelope {
+    pub fn of(x: &[f64], buckets: usize, fs: f64) -> Self {
+        let n = x.len();
+        let b = buckets.max(1).min(n.max(1));
+        let (mut min, mut max) = (Vec::with_capacity(b), Vec::with_capacity(b));
+        for i in 0..b {
+            let (s, e) = (i * n / b, ((i + 1) * n / b).max(i * n / b + 1).min(n));
+            let part = &x[s.min(n)..e];
+            if part.is_empty() {
+                break;
+            }
+            min.push(part.iter().copied().fold(f64::INFINITY, f64::min));
+            max.push(part.iter().copied().fold(f64::NEG_INFINITY, f64::max));
+        }
+        Envelope {
+            min,
+            max,
+            span_s: n as f64 / fs,
+        }
+    }
+
+    /// Largest magnitude in the envelope.
+    pub fn peak(&self) -> f64 {
+        self.min
+            .iter()
+            .chain(&self.max)
+            .fold(0.0_f64, |a, v| a.max(v.abs()))
+    }
+}
+
+/// One channel of the live view.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Trace {
+    pub channel: usize,
+    pub name: String,
+    pub unit: String,
+    /// Baseline removed.
+    pub envelope: Envelope,
+}
+
+/// The fast-changing part: the live signal and the counters.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LiveSnap {
+    /// Samples seen since the stream began.
+    pub position: u64,
+    pub trigger_channel: usize,
+    /// Trigger level (deviation from the baseline) in the trigger channel's unit.
+    pub threshold: Option<f64>,
+    pub traces: Vec<Trace>,
+    pub armed: bool,
+    pub overrun_frames: u64,
+    pub link: Option<LinkCounters>,
+    /// Something would be written by a save that is not on disk yet.
+    pub unsaved: bool,
+    /// Sequence number of the last command the engine has applied.
+    pub applied_seq: u64,
+    pub recorded_frames: u64,
+    /// File stem of this run's files in the output folder.
+    pub stem: String,
+}
+
+/// The last hit, ready to draw.
+#[derive(Debug, Clone, PartialEq)]
+pub struct HitView {
+    pub number: usize,
+    pub verdict: Verdict,
+    pub reason: String,
+    pub peak_force: Option<f64>,
+    pub peak_response: f64,
+    /// Force from the record start to `FORCE_VIEW_S` after the trigger.
+    pub force: Option<Envelope>,
+    /// Response over the whole record.
+    pub response: Envelope,
+    pub pretrigger_s: f64,
+    pub force_unit: String,
+    pub response_unit: String,
+}
+
+/// A curve for the screen, in dB.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CurveSnap {
+    pub basis: Basis,
+    pub freqs: Vec<f64>,
+    /// 20 log10 |magnitude|, dB re 1 `unit`.
+    pub db: Vec<f64>,
+    pub magnitude: Vec<f64>,
+    pub coherence: Option<Vec<f64>>,
+    pub unit: String,
+}
+
+/// The slow-changing part: everything the averaged analysis says.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AnalysisSnap {
+    /// Increases with every snapshot.
+    pub version: u64,
+    pub hits: Vec<HitSummary>,
+    pub accepted: usize,
+    pub last_hit: Option<HitView>,
+    pub basis: Basis,
+    pub estimator: Estimator,
+    pub curve: Option<CurveSnap>,
+    pub modes: Vec<Mode>,
+    pub resolution_hz: f64,
+    /// The current state written as a run file (for comparisons).
+    pub run: RunFile,
+}
+
+/// Messages from the engine to the screen.
+#[derive(Debug, Clone)]
+pub enum Update {
+    Live(Box<LiveSnap>),
+    Analysis(Arc<AnalysisSnap>),
+    Saved {
+        json: PathBuf,
+        wav: PathBuf,
+        modes: usize,
+        hits: usize,
+        /// True for the automatic save after a hit.
+        auto: bool,
+    },
+    /// Something went wrong but the app goes on (a file could not be written...).
+    Problem(String),
+    /// The source ended (with the reason if it failed).
+    Ended(Option<String>),
+}
+
+/// Everything the app's main loop waits on: engine updates and terminal input.
+#[derive(Debug, Clone)]
+pub enum Inbox {
+    Update(Update),
+    Key(ratatui::crossterm::event::KeyEvent),
+    Resize,
+}
+
+/// How often the worker sends the live view.
+pub const LIVE_EVERY: Duration = Duration::from_millis(40);

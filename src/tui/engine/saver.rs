@@ -1,0 +1,318 @@
+//! The app's file side: the recording (WAV) and the run files (JSON + CSV), written in the
+//! order the engine asks. In the app it runs on its own thread so neither the acquisition
+//! nor the analysis ever waits on a disk; tests run it inline.
+//!
+//! The engine prepares what a save writes (`RunFiles`: the mode search is done there) and
+//! queues it behind the blocks it recorded, so each JSON describes a WAV that holds at least
+//! as many frames as it says.
+
+use super::messages::{Inbox, Update};
+use crate::error::Result;
+use crate::run::naming::{claim_stem, stem_for};
+use crate::run::recording::{Encoding, RecordingWriter};
+use crate::run::{RecordingNote, RunFiles};
+use crate::signal::{Block, StreamInfo};
+use std::path::{Path, PathBuf};
+use std::sync::mpsc::{Receiver, Sender};
+use std::sync::{Arc, Mutex};
+use std::thread::JoinHandle;
+
+/// Encoding written into the run file when the recorder has failed and is gone.
+const NO_RECORDER_ENCODING: Encoding = Encoding::Float32;
+
+/// Work for the saver, carried out in order.
+pub(crate) enum Job {
+    Append(Block),
+    Flush,
+    /// Write the run files; `generation` is the engine's change count they describe.
+    Write {
+        files: Box<RunFiles>,
+        generation: u64,
+        auto: bool,
+    },
+    /// Move this run's files to a stem for the new label, then (if the JSON was written
+    /// before) write `files` so the JSON names the moved WAV.
+    Rename {
+        label: String,
+        files: Box<RunFiles>,
+        generation: u64,
+    },
+    /// Close this run's recording and start the next one under a stem for `label`.
+    NewRecording(String),
+    /// Close the recording (valid WAV with its final header).
+    Finish,
+}
+
+/// What the engine reads back from the saver (shared with the saver's thread).
+#[derive(Debug, Clone, Default)]
+pub(crate) struct SaverState {
+    pub stem: String,
+    pub recorded_frames: u64,
+    /// The engine generation of the last run files written.
+    pub written_generation: u64,
+}
+
+/// Owns the recording and the run-file names of the current run.
+pub(crate) struct SaverCore {
+    out_dir: PathBuf,
+    info: StreamInfo,
+    stem: String,
+    recorder: Option<RecordingWriter>,
+    /// The JSON of this run has been written at least once.
+    wrote_json: bool,
+    state: Arc<Mutex<SaverState>>,
+    /// Tests: how long each run-file write takes at least (a slow disk).
+    #[cfg(test)]
+    pub(crate) slow_writes: Option<std::time::Duration>,
+}
+
+impl SaverCore {
+    /// Start the first run's recording in `out_dir` under a stem for `label`.
+    pub fn start(out_dir: &Path, info: &StreamInfo, label: &str) -> Result<SaverCore> {
+        let (recorder, stem) = RecordingWriter::create_fresh(out_dir, label, info)?;
+        let state = Arc::new(Mutex::new(SaverState {
+            stem: stem.clone(),
+            ..SaverState::default()
+        }));
+        Ok(SaverCore {
+            out_dir: out_dir.to_path_buf(),
+            info: info.clone(),
+            stem,
+            recorder: Some(recorder),
+            wrote_json: false,
+            state,
+            #[cfg(test)]
+            slow_writes: None,
+        })
+    }
+
+    pub fn state(&self) -> Arc<Mutex<SaverState>> {
+        self.state.clone()
+    }
+
+    fn path(&self, ext: &str) -> PathBuf {
+        self.out_dir.join(format!("{}.{ext}", self.stem))
+    }
+
+    fn publish(&self, written: Option<u64>) {
+        let mut s = self.state.lock().unwrap_or_else(|p| p.into_inner());
+        s.stem = self.stem.clone();
+        s.recorded_frames = self.recorder.as_ref().map_or(0, |r| r.frames());
+        if let Some(g) = written {
+            s.written_generation = s.written_generation.max(g);
+        }
+    }
+
+    /// Carry out one job; what the screen should hear about it.
+    pub fn handle(&mut self, job: Job) -> Vec<Update> {
+        let mut out = Vec::new();
+        let mut written = None;
+        match job {
+            Job::Append(block) => {
+                if let Some(r) = self.recorder.as_mut()
+                    && let Err(e) = r.append(&block)
+                {
+                    out.push(Update::Problem(format!("recording stopped: {e}")));
+                    self.recorder = None;
+                }
+            }
+            Job::Flush => self.flush(&mut out),
+            Job::Write {
+                files,
+                generation,
+                auto,
+            } => {
+                if self.write(*files, auto, &mut out) {
+                    written = Some(generation);
+                }
+            }
+            Job::Rename {
+                label,
+                files,
+                generation,
+            } => {
+                if self.rename(&label, &mut out)
+                    && self.wrote_json
+                    && self.write(*files, true, &mut out)
+                {
+                    written = Some(generation);
+                }
+            }
+            Job::NewRecording(label) => {
+                if let Err(e) = self.finish() {
+                    out.push(Update::Problem(format!("cannot start a new run: {e}")));
+                } else {
+                    match RecordingWriter::create_fresh(&self.out_dir, &label, &self.info) {
+                        Ok((recorder, stem)) => {
+                            self.recorder = Some(recorder);
+                            self.stem = stem;
+                            self.wrote_json = false;
+                        }
+                        Err(e) => out.push(Update::Problem(format!("cannot start a new run: {e}"))),
+                    }
+                }
+            }
+            Job::Finish => {
+                if let Err(e) = self.finish() {
+                    out.push(Update::Problem(e.to_string()));
+                }
+            }
+        }
+        self.publish(written);
+        out
+    }
+
+    fn flush(&mut self, out: &mut Vec<Update>) {
+        if let Some(r) = self.recorder.as_mut()
+            && let Err(e) = r.flush()
+        {
+            out.push(Update::Problem(format!("cannot flush the recording: {e}")));
+        }
+    }
+
+    /// Flush the recording and write the run files; true when they were written.
+    fn write(&mut self, files: RunFiles, auto: bool, out: &mut Vec<Update>) -> bool {
+        #[cfg(test)]
+        if let Some(d) = self.slow_writes {
+            std::thread::sleep(d);
+        }
+        self.flush(out);
+        let (json, wav) = (self.path("json"), self.path("wav"));
+        let encoding = self
+            .recorder
+            .as_ref()
+            .map_or(NO_RECORDER_ENCODING, |r| r.encoding());
+        let gaps = self
+            .recorder
+            .as_ref()
+            .map_or_else(Vec::new, |r| r.gaps().to_vec());
+        let note = RecordingNote {
+            wav: &wav,
+            encoding,
+            gaps: &gaps,
+        };
+        match files.write(&json, Some(note)) {
+            Ok(run) => {
+                self.wrote_json = true;
+                out.push(Update::Saved {
+                    json,
+                    wav,
+                    modes: run.modes.len(),
+                    hits: run.hits_total,
+                    auto,
+                });
+                true
+            }
+            Err(e) => {
+                out.push(Update::Problem(format!("save failed: {e}")));
+                false
+            }
+        }
+    }
+
+    /// Move this run's files to the first free stem for `label` (claimed exclusively);
+    /// true when the files now carry the new stem.
+    fn rename(&mut self, label: &str, out: &mut Vec<Update>) -> bool {
+        if stem_for(label) == self.stem {
+            return false;
+        }
+        let stem = match claim_stem(&self.out_dir, label) {
+            Ok((stem, _placeholder)) => stem,
+            Err(e) => {
+                out.push(Update::Problem(format!(
+                    "cannot rename the run: {e}; the files keep their names"
+                )));
+                return false;
+            }
+        };
+        let new = |ext: &str| self.out_dir.join(format!("{stem}.{ext}"));
+        for ext in ["wav", "json", "csv"] {
+            let from = self.path(ext);
+            let ours = ext == "wav" || self.wrote_json;
+            if ours && from.exists() {
+                // The claimed (empty) WAV is replaced by ours in one step.
+                if let Err(e) = std::fs::rename(&from, new(ext)) {
+                    if ext == "wav" {
+                        let _ = std::fs::remove_file(new("wav"));
+                    }
+                    out.push(Update::Problem(format!(
+                        "cannot rename '{}': {e}; the files keep their names",
+                        from.display()
+                    )));
+                    return false;
+                }
+            }
+        }
+        self.stem = stem;
+        true
+    }
+
+    fn finish(&mut self) -> Result<()> {
+        match self.recorder.take() {
+            Some(r) => r.finish(),
+            None => Ok(()),
+        }
+    }
+}
+
+/// The saver as the engine sees it: inline (tests, the bench) or on its own thread.
+pub(crate) enum Saver {
+    Inline(Box<SaverCore>),
+    Threaded {
+        jobs: Sender<Job>,
+        thread: Option<JoinHandle<()>>,
+    },
+    /// Between moving the core to its thread and the thread being set up.
+    Gone,
+}
+
+impl Saver {
+    /// Queue a job; inline, it is done at once and its updates returned.
+    pub fn submit(&mut self, job: Job) -> Vec<Update> {
+        match self {
+            Saver::Inline(core) => core.handle(job),
+            Saver::Threaded { jobs, .. } => {
+                if jobs.send(job).is_err() {
+                    vec![Update::Problem("the file writer has stopped".into())]
+                } else {
+                    Vec::new()
+                }
+            }
+            Saver::Gone => Vec::new(),
+        }
+    }
+
+    /// Move the saver to its own thread; its updates go to `out`.
+    pub fn detach(&mut self, out: Sender<Inbox>) {
+        let Saver::Inline(core) = std::mem::replace(self, Saver::Gone) else {
+            return;
+        };
+        let (tx, rx) = std::sync::mpsc::channel();
+        let thread = std::thread::spawn(move || run(*core, rx, out));
+        *self = Saver::Threaded {
+            jobs: tx,
+            thread: Some(thread),
+        };
+    }
+
+    /// Close the recording and wait until every queued job is done.
+    pub fn finish(&mut self) -> Vec<Update> {
+        let out = self.submit(Job::Finish);
+        if let Saver::Threaded { jobs, thread } = self {
+            // Closing the queue ends the thread once it has done everything queued.
+            drop(std::mem::replace(jobs, std::sync::mpsc::channel().0));
+            if let Some(t) = thread.take() {
+                let _ = t.join();
+            }
+        }
+        out
+    }
+}
+
+fn run(mut core: SaverCore, jobs: Receiver<Job>, out: Sender<Inbox>) {
+    for job in jobs {
+        for u in core.handle(job) {
+            let _ = out.send(Inbox::Update(u));
+        }
+    }
+}
