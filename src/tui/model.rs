@@ -137,6 +137,8 @@ pub struct Model {
     pub change_seq: u64,
     /// Logarithmic frequency axis on the curve plot.
     pub log_freq: bool,
+    /// The change count held by the last save the engine confirmed.
+    pub saved_generation: u64,
     /// The motors' excitation bands drawn on the curve (see `drive`).
     pub drive: Option<crate::drive::Drive>,
 }
@@ -172,6 +174,7 @@ impl Model {
             sent_seq: 0,
             change_seq: 0,
             log_freq: false,
+            saved_generation: 0,
             drive: None,
         }
     }
@@ -186,7 +189,11 @@ impl Model {
     /// Whether the state differs from what is on disk.
     pub fn unsaved(&self) -> bool {
         let applied = self.live.as_ref().map_or(0, |l| l.applied_seq);
-        let engine = self.live.as_ref().is_some_and(|l| l.unsaved);
+        // A live view older than the last confirmed save says nothing new.
+        let engine = self
+            .live
+            .as_ref()
+            .is_some_and(|l| l.unsaved && l.generation > self.saved_generation);
         let has_hits = self.counts().1 > 0;
         engine || (has_hits && self.change_seq > applied)
     }
@@ -601,8 +608,10 @@ fn on_update(m: &mut Model, u: Update, fx: &mut Vec<Effect>) {
             modes,
             hits,
             auto,
+            generation,
             ..
         } => {
+            m.saved_generation = m.saved_generation.max(generation);
             let name = json
                 .file_name()
                 .map_or(String::new(), |n| n.to_string_lossy().into_owned());

@@ -333,6 +333,7 @@ impl Engine {
             overrun_frames: self.overrun_frames,
             link: self.link,
             unsaved: self.dirty() && !self.analysis.hits().is_empty(),
+            generation: self.generation,
             applied_seq: self.applied_seq,
             recorded_frames: saved.recorded_frames,
             stem: saved.stem,

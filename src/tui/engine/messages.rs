@@ -51,7 +51,6 @@ impl Cmd {
                 | Cmd::SetEstimator(_)
                 | Cmd::SetBasis(_)
                 | Cmd::SetLabel(_)
-                | Cmd::Save
         )
     }
 }
@@ -119,6 +118,10 @@ pub struct LiveSnap {
     pub link: Option<LinkCounters>,
     /// Something would be written by a save that is not on disk yet.
     pub unsaved: bool,
+    /// Count of changes to the analysis so far: the screen compares it with the count a
+    /// `Saved` carries, so a save confirmed before the next live view is not taken for
+    /// unsaved changes (one source for the save state).
+    pub generation: u64,
     /// Sequence number of the last command the engine has applied.
     pub applied_seq: u64,
     pub recorded_frames: u64,
@@ -184,6 +187,8 @@ pub enum Update {
         hits: usize,
         /// True for the automatic save after a hit.
         auto: bool,
+        /// The engine's change count the files hold (see `LiveSnap::generation`).
+        generation: u64,
     },
     /// Something went wrong but the app goes on (a file could not be written...).
     Problem(String),

@@ -122,7 +122,7 @@ impl SaverCore {
                 generation,
                 auto,
             } => {
-                if self.write(*files, auto, &mut out) {
+                if self.write(*files, auto, generation, &mut out) {
                     written = Some(generation);
                 }
             }
@@ -133,7 +133,7 @@ impl SaverCore {
             } => {
                 if self.rename(&label, &mut out)
                     && self.wrote_json
-                    && self.write(*files, true, &mut out)
+                    && self.write(*files, true, generation, &mut out)
                 {
                     written = Some(generation);
                 }
@@ -171,7 +171,13 @@ impl SaverCore {
     }
 
     /// Flush the recording and write the run files; true when they were written.
-    fn write(&mut self, files: RunFiles, auto: bool, out: &mut Vec<Update>) -> bool {
+    fn write(
+        &mut self,
+        files: RunFiles,
+        auto: bool,
+        generation: u64,
+        out: &mut Vec<Update>,
+    ) -> bool {
         #[cfg(test)]
         if let Some(d) = self.slow_writes {
             std::thread::sleep(d);
@@ -200,6 +206,7 @@ impl SaverCore {
                     modes: run.modes.len(),
                     hits: run.hits_total,
                     auto,
+                    generation,
                 });
                 true
             }
