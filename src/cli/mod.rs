@@ -7,6 +7,8 @@ pub mod bench;
 pub mod capture;
 pub mod compare;
 pub mod drive_args;
+pub mod html_report;
+pub mod plot;
 pub mod ports;
 pub mod report;
 pub mod simulate;
@@ -16,7 +18,7 @@ pub mod tui;
 use crate::error::Result;
 use clap::{Parser, Subcommand};
 
-const SAFETY: &str = "Safety: take the propellers off, disconnect the flight battery and secure the \
+pub(crate) const SAFETY: &str = "Safety: take the propellers off, disconnect the flight battery and secure the \
 craft before tapping it; tap gently. This tool's findings do not replace the manufacturer's \
 guidance, local rules or a careful first hover; the motor-band verdicts are estimates from \
 nameplate values, guidance only. No motor is run.";
@@ -42,6 +44,10 @@ pub enum Command {
     Analyze(Box<analyze::AnalyzeArgs>),
     /// Compare the mode lists of variants against the first one.
     Compare(compare::CompareArgs),
+    /// Write a picture (SVG or PNG) of runs: FRF magnitude, phase, coherence, modes, bands.
+    Plot(Box<plot::PlotArgs>),
+    /// Write one self-contained HTML page: plot, comparison, setups, hits, notes, warnings.
+    Report(Box<html_report::ReportArgs>),
     /// Change a run file's label, note or mass (grams) after the fact.
     Amend(amend::AmendArgs),
     /// Capture hits live (serial, sound card, replay or the simulated bench) without the app.
@@ -62,6 +68,8 @@ pub fn run(cli: Cli) -> Result<()> {
         Some(Command::Compare(a)) => compare::run(&a),
         Some(Command::Capture(a)) => capture::run(&a),
         Some(Command::Amend(a)) => amend::run(&a),
+        Some(Command::Plot(a)) => plot::run(&a),
+        Some(Command::Report(a)) => html_report::run(&a),
         Some(Command::Ports) => ports::ports(),
         Some(Command::Devices) => ports::devices(),
         Some(Command::Bench(a)) => bench::run(&a),

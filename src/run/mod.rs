@@ -3,6 +3,7 @@
 pub mod atomic;
 pub mod compare;
 pub mod curve_read;
+pub mod modes_csv;
 pub mod recording;
 pub mod safe_path;
 pub mod validate;

@@ -1,0 +1,98 @@
+//! Figures from what the tool already holds: run files with their curve tables (the
+//! commands) or an analysis result (the app).
+
+use super::{Figure, MountTrace, Trace};
+use crate::drive::Band;
+use crate::pipeline::AnalysisResult;
+use crate::run::RunFile;
+use crate::run::curve_read::SavedCurve;
+use crate::spectra::Curve;
+
+/// Decibels re 1 unit of a magnitude (floored far below any measurement).
+fn db(m: f64) -> f64 {
+    20.0 * m.max(1e-300).log10()
+}
+
+/// One run's trace from its run file and its curve table.
+pub fn trace_from_run(run: &RunFile, curve: &SavedCurve) -> Trace {
+    Trace {
+        label: run.variant.label.clone(),
+        kind: run.setup.basis.label().to_string(),
+        unit: curve.unit.clone(),
+        freqs: curve.freqs.clone(),
+        magnitude_db: curve.magnitude_db.clone(),
+        phase_deg: curve.phase_deg.clone(),
+        coherence: curve.coherence.clone(),
+        spread_db: curve.spread_db.clone(),
+        modes_hz: run.modes.iter().map(|m| m.frequency_hz).collect(),
+    }
+}
+
+/// A trace from a live curve (the app's current view).
+pub fn trace_from_curve(label: &str, freqs: &[f64], curve: &Curve, modes_hz: Vec<f64>) -> Trace {
+    Trace {
+        label: label.to_string(),
+        kind: curve.basis.label().to_string(),
+        unit: curve.unit.clone(),
+        freqs: freqs.to_vec(),
+        magnitude_db: curve.magnitude.iter().map(|&m| db(m)).collect(),
+        phase_deg: curve.phase_deg.clone(),
+        coherence: curve.coherence.clone(),
+        spread_db: curve.spread_db.clone(),
+        modes_hz,
+    }
+}
+
+/// A soft mount's panel entry: the measured transmissibility when a curve of it is at hand.
+pub fn mount_trace(label: &str, run: &RunFile, measured: Option<(&[f64], &Curve)>) -> Option<MountTrace> {
+    let fit = run.mount.clone()?;
+    Some(MountTrace {
+        label: label.to_string(),
+        measured: measured.map(|(f, c)| (f.to_vec(), c.magnitude.iter().map(|&m| db(m)).collect())),
+        fit,
+    })
+}
+
+/// The bands of the runs' drive sections, each band once (same name and edges).
+pub fn bands_of<'a>(runs: impl IntoIterator<Item = &'a RunFile>) -> Vec<Band> {
+    let mut out: Vec<Band> = Vec::new();
+    for r in runs {
+        for b in r.drive.iter().flat_map(|d| d.bands.iter()) {
+            if !out.contains(b) {
+                out.push(b.clone());
+            }
+        }
+    }
+    out
+}
+
+/// The figure of an analysis in progress: its curve, modes, mount and the given bands.
+pub fn figure_from_result(label: &str, r: &AnalysisResult, bands: Vec<Band>) -> Figure {
+    let mut fig = Figure {
+        bands,
+        ..Figure::default()
+    };
+    match &r.curve {
+        Some(c) => fig.traces.push(trace_from_curve(
+            label,
+            &r.spectra.freqs,
+            c,
+            r.modes().iter().map(|m| m.frequency_hz).collect(),
+        )),
+        None => fig
+            .notes
+            .push(format!("{label}: no curve yet (no accepted hit)")),
+    }
+    if let Some(fit) = &r.mount {
+        let measured = r
+            .spectra
+            .curve(crate::spectra::Basis::Transmissibility)
+            .map(|c| (r.spectra.freqs.clone(), c.magnitude.iter().map(|&m| db(m)).collect()));
+        fig.mounts.push(MountTrace {
+            label: label.to_string(),
+            measured,
+            fit: fit.clone(),
+        });
+    }
+    fig
+}
