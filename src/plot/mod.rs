@@ -141,23 +141,26 @@ impl Figure {
         self.traces.iter().any(|t| t.coherence.is_some())
     }
 
-    /// The frequency range covered by the curves (and mounts).
+    /// The frequency range covered by the curves (the mounts' range when there is no curve:
+    /// a re-analysed transmissibility spans the whole spectrum, the curves the band searched).
     fn data_range(&self) -> Option<(f64, f64)> {
-        let all = self
-            .traces
+        let from_traces = self.traces.iter().flat_map(|t| t.freqs.iter());
+        let from_mounts = self
+            .mounts
             .iter()
-            .flat_map(|t| t.freqs.iter())
-            .chain(
-                self.mounts
-                    .iter()
-                    .filter_map(|m| m.measured.as_ref())
-                    .flat_map(|m| m.0.iter()),
-            )
-            .copied()
-            .filter(|f| f.is_finite() && *f > 0.0);
-        let (lo, hi) = all.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), f| {
-            (a.min(f), b.max(f))
-        });
+            .filter_map(|m| m.measured.as_ref())
+            .flat_map(|m| m.0.iter());
+        let all: Vec<f64> = if self.traces.is_empty() {
+            from_mounts.copied().collect()
+        } else {
+            from_traces.copied().collect()
+        };
+        let (lo, hi) = all
+            .into_iter()
+            .filter(|f| f.is_finite() && *f > 0.0)
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), f| {
+                (a.min(f), b.max(f))
+            });
         (lo < hi).then_some((lo, hi))
     }
 }
@@ -410,11 +413,13 @@ fn y_range(fig: &Figure, name: &str, o: &PlotOptions, range: (f64, f64)) -> (f64
             let hi_db = vals[vals.len() - 1];
             let lo_db = vals[vals.len() / 100];
             if o.db {
-                let hi = hi_db + 6.0;
                 let lo = lo_db.max(hi_db - 90.0) - 3.0;
+                // Room above the highest peak for the rows of mode frequencies.
+                let rows = fig.traces.len().min(4) as f64;
+                let hi = hi_db + (hi_db - lo) * (0.06 + 0.06 * rows);
                 (lo, hi)
             } else {
-                (0.0, level(hi_db, false) * 1.08)
+                (0.0, level(hi_db, false) * (1.08 + 0.06 * fig.traces.len().min(4) as f64))
             }
         }
     }
@@ -448,7 +453,7 @@ fn draw_panel(
         .margin_right(20)
         .margin_top(6)
         .margin_bottom(4)
-        .x_label_area_size(if bottom { 40 } else { 18 })
+        .x_label_area_size(if bottom { 40 } else { 20 })
         .y_label_area_size(64)
         .build_cartesian_2d(t(range.0)..t(range.1), yr.0..yr.1)
         .map_err(draw_err)?;
@@ -458,9 +463,17 @@ fn draw_panel(
         .x_labels(0)
         .y_labels(if name == "magnitude" || name == "transmissibility" { 8 } else { 4 })
         .y_desc(y_desc)
+        .y_label_formatter(&|v: &f64| {
+            if name == "coherence" || (name == "magnitude" && !o.db) {
+                format!("{v:.2}")
+            } else {
+                format!("{v:.0}")
+            }
+        })
         .label_style((FONT, 13))
         .axis_desc_style((FONT, 13))
-        .light_line_style(RGBColor(235, 235, 235))
+        .max_light_lines(1)
+        .light_line_style(RGBColor(240, 240, 240))
         .bold_line_style(RGBColor(215, 215, 215))
         .draw()
         .map_err(draw_err)?;
@@ -484,7 +497,7 @@ fn draw_panel(
         let x = panel.x_of(f) as i32;
         area.draw(&Text::new(
             fmt_hz(f),
-            (x - 4 * fmt_hz(f).len() as i32, panel.y_px.1 + 4),
+            rel(area, (x - 4 * fmt_hz(f).len() as i32, panel.y_px.1 + 4)),
             (FONT, 12).into_font().color(&BLACK),
         ))
         .map_err(draw_err)?;
@@ -492,7 +505,7 @@ fn draw_panel(
     if bottom {
         area.draw(&Text::new(
             "frequency, Hz",
-            ((panel.x_px.0 + panel.x_px.1) / 2 - 40, panel.y_px.1 + 20),
+            rel(area, ((panel.x_px.0 + panel.x_px.1) / 2 - 40, panel.y_px.1 + 22)),
             (FONT, 13).into_font().color(&BLACK),
         ))
         .map_err(draw_err)?;
@@ -514,7 +527,7 @@ fn draw_panel(
             let x = panel.x_of(lo) as i32 + 3;
             area.draw(&Text::new(
                 b.name.clone(),
-                (x, panel.y_px.0 + 3 + 14 * (i as i32 % 3)),
+                rel(area, (x, panel.y_px.1 - 16 - 14 * (i as i32 % 3))),
                 (FONT, 12).into_font().color(&RGBColor(60, 60, 60)),
             ))
             .map_err(draw_err)?;
@@ -579,12 +592,12 @@ fn draw_panel(
                                 st.color.filled(),
                             )))
                             .map_err(draw_err)?;
-                        let (x, y) = (panel.x_of(fm) as i32, panel.y_of(v) as i32);
+                        // Frequencies in one row per trace at the top, in the trace's colour.
+                        let x = panel.x_of(fm) as i32;
                         let text = format!("{fm:.0}");
-                        let dy = 24 + 13 * (i as i32 % 3);
                         area.draw(&Text::new(
                             text.clone(),
-                            (x - 3 * text.len() as i32, (y - dy).max(panel.y_px.0 + 2)),
+                            rel(area, (x - 3 * text.len() as i32, label_row(&panel, i))),
                             (FONT, 12).into_font().color(&st.color),
                         ))
                         .map_err(draw_err)?;
@@ -684,7 +697,18 @@ fn draw_mounts(
             true,
         ));
     }
-    legend_box(area, panel, &entries)
+    legend_box(area, panel, &entries, 0)
+}
+
+/// Picture pixel coordinates relative to a drawing area (whose own origin is elsewhere).
+fn rel(area: &DrawingArea<SVGBackend, Shift>, p: (i32, i32)) -> (i32, i32) {
+    let b = area.get_base_pixel();
+    (p.0 - b.0, p.1 - b.1)
+}
+
+/// Pixel row (top of the text) of trace `i`'s mode frequencies.
+fn label_row(panel: &Panel, i: usize) -> i32 {
+    panel.y_px.0 + 3 + 13 * (i % 4) as i32
 }
 
 fn draw_legend(area: &DrawingArea<SVGBackend, Shift>, panel: &Panel, fig: &Figure) -> Result<()> {
@@ -705,13 +729,14 @@ fn draw_legend(area: &DrawingArea<SVGBackend, Shift>, panel: &Panel, fig: &Figur
             )
         })
         .collect();
-    legend_box(area, panel, &entries)
+    legend_box(area, panel, &entries, fig.traces.len().min(4))
 }
 
 fn legend_box(
     area: &DrawingArea<SVGBackend, Shift>,
     panel: &Panel,
     entries: &[(String, TraceStyle, bool)],
+    label_rows: usize,
 ) -> Result<()> {
     if entries.is_empty() {
         return Ok(());
@@ -719,21 +744,29 @@ fn legend_box(
     let longest = entries.iter().map(|e| e.0.len()).max().unwrap_or(0) as i32;
     let w = 50 + 7 * longest;
     let h = 8 + 18 * entries.len() as i32;
-    let x0 = (panel.x_px.1 - w - 6).max(panel.x_px.0 + 4);
-    let y0 = panel.y_px.0 + 6;
+    // Top right under the rows of mode frequencies; bottom left for the mounts (flat at
+    // 0 dB below the mount frequency, falling above it: the lower left is free).
+    let (x0, y0) = if panel.name == "transmissibility" {
+        (panel.x_px.0 + 6, panel.y_px.1 - h - 6)
+    } else {
+        (
+            (panel.x_px.1 - w - 6).max(panel.x_px.0 + 4),
+            panel.y_px.0 + 6 + 13 * label_rows as i32,
+        )
+    };
     area.draw(&Rectangle::new(
-        [(x0, y0), (x0 + w, y0 + h)],
+        [rel(area, (x0, y0)), rel(area, (x0 + w, y0 + h))],
         WHITE.mix(0.9).filled(),
     ))
     .map_err(draw_err)?;
     area.draw(&Rectangle::new(
-        [(x0, y0), (x0 + w, y0 + h)],
+        [rel(area, (x0, y0)), rel(area, (x0 + w, y0 + h))],
         RGBColor(150, 150, 150).stroke_width(1),
     ))
     .map_err(draw_err)?;
     for (k, (text, st, thin_line)) in entries.iter().enumerate() {
         let y = y0 + 13 + 18 * k as i32;
-        let pts = vec![(x0 + 8, y), (x0 + 40, y)];
+        let pts = vec![rel(area, (x0 + 8, y)), rel(area, (x0 + 40, y))];
         let style = st.color.stroke_width(if *thin_line { 1 } else { 2 });
         match st.dash {
             None => area.draw(&PathElement::new(pts, style)),
@@ -742,7 +775,7 @@ fn legend_box(
         .map_err(draw_err)?;
         area.draw(&Text::new(
             text.clone(),
-            (x0 + 46, y - 7),
+            rel(area, (x0 + 46, y - 7)),
             (FONT, 13).into_font().color(&BLACK),
         ))
         .map_err(draw_err)?;
