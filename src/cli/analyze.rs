@@ -206,7 +206,9 @@ fn parse_freq_or_band(s: &str) -> std::result::Result<(f64, f64), String> {
 /// file is checked like command-line settings, its recording must lie in its folder and
 /// match it (channels, rate, length), and the recording's own calibration and full scale
 /// are taken from the run, so re-analysis reproduces the capture.
-pub(crate) fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
+pub(crate) fn reanalyse(
+    json: &Path,
+) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
     let saved = RunFile::load(json)?;
     let shown = json.display();
     let wav = saved.wav_path(json).ok_or_else(|| {

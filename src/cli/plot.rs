@@ -94,7 +94,11 @@ pub struct Loaded {
 /// be read, is named in the figure's notes (and on stderr) and drawn by its mode list alone
 /// in the tables; a soft mount's measured transmissibility comes from re-analysing its
 /// recording unless `fit_only`.
-pub fn load(paths: &[PathBuf], fit_only: bool, drive: Option<crate::drive::Drive>) -> Result<Loaded> {
+pub fn load(
+    paths: &[PathBuf],
+    fit_only: bool,
+    drive: Option<crate::drive::Drive>,
+) -> Result<Loaded> {
     let mut runs = Vec::new();
     let mut inputs: Vec<PathBuf> = Vec::new();
     let mut fig = Figure::default();
@@ -142,7 +146,11 @@ pub fn load(paths: &[PathBuf], fit_only: bool, drive: Option<crate::drive::Drive
                     }
                 }
             };
-            let m = mount_trace(&label, &run, measured.as_ref().map(|(f, c)| (f.as_slice(), c)));
+            let m = mount_trace(
+                &label,
+                &run,
+                measured.as_ref().map(|(f, c)| (f.as_slice(), c)),
+            );
             fig.mounts.extend(m);
         }
         runs.push((shown, run));
@@ -191,8 +199,15 @@ pub fn run(a: &PlotArgs) -> Result<()> {
     let drive = a.drive.drive()?;
     let loaded = load(&a.runs, a.look.fit_only, drive)?;
     match kind {
-        PictureKind::Svg => check_picture_out(&a.out, &loaded.inputs, "an SVG picture", &[b"<svg", b"<?xml"])?,
-        PictureKind::Png => check_picture_out(&a.out, &loaded.inputs, "a PNG picture", &[b"\x89PNG"])?,
+        PictureKind::Svg => check_picture_out(
+            &a.out,
+            &loaded.inputs,
+            "an SVG picture",
+            &[b"<svg", b"<?xml"],
+        )?,
+        PictureKind::Png => {
+            check_picture_out(&a.out, &loaded.inputs, "a PNG picture", &[b"\x89PNG"])?
+        }
     }
     if let Some(m) = &a.modes_csv {
         if !m.extension().is_some_and(|e| e.eq_ignore_ascii_case("csv")) {
@@ -211,11 +226,23 @@ pub fn run(a: &PlotArgs) -> Result<()> {
         r.width,
         r.height,
         loaded.figure.traces.len(),
-        if loaded.figure.traces.len() == 1 { "" } else { "s" },
+        if loaded.figure.traces.len() == 1 {
+            ""
+        } else {
+            "s"
+        },
         loaded.figure.mounts.len(),
-        if loaded.figure.mounts.len() == 1 { "" } else { "s" },
+        if loaded.figure.mounts.len() == 1 {
+            ""
+        } else {
+            "s"
+        },
         loaded.figure.bands.len(),
-        if loaded.figure.bands.len() == 1 { "" } else { "s" },
+        if loaded.figure.bands.len() == 1 {
+            ""
+        } else {
+            "s"
+        },
     );
     if let Some(m) = &a.modes_csv {
         let text = crate::run::modes_csv::modes_csv(&loaded.runs)?;
@@ -232,10 +259,6 @@ fn same_path(a: &Path, b: &Path) -> bool {
 
 /// Figure notes as an error when nothing at all can be drawn.
 pub fn nothing_drawn(fig: &Figure) -> Option<Error> {
-    (fig.traces.is_empty() && fig.mounts.is_empty()).then(|| {
-        Error::new(format!(
-            "nothing to plot: {}",
-            fig.notes.join("; ")
-        ))
-    })
+    (fig.traces.is_empty() && fig.mounts.is_empty())
+        .then(|| Error::new(format!("nothing to plot: {}", fig.notes.join("; "))))
 }

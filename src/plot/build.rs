@@ -44,7 +44,11 @@ pub fn trace_from_curve(label: &str, freqs: &[f64], curve: &Curve, modes_hz: Vec
 }
 
 /// A soft mount's panel entry: the measured transmissibility when a curve of it is at hand.
-pub fn mount_trace(label: &str, run: &RunFile, measured: Option<(&[f64], &Curve)>) -> Option<MountTrace> {
+pub fn mount_trace(
+    label: &str,
+    run: &RunFile,
+    measured: Option<(&[f64], &Curve)>,
+) -> Option<MountTrace> {
     let fit = run.mount.clone()?;
     Some(MountTrace {
         label: label.to_string(),
@@ -87,7 +91,12 @@ pub fn figure_from_result(label: &str, r: &AnalysisResult, bands: Vec<Band>) -> 
         let measured = r
             .spectra
             .curve(crate::spectra::Basis::Transmissibility)
-            .map(|c| (r.spectra.freqs.clone(), c.magnitude.iter().map(|&m| db(m)).collect()));
+            .map(|c| {
+                (
+                    r.spectra.freqs.clone(),
+                    c.magnitude.iter().map(|&m| db(m)).collect(),
+                )
+            });
         fig.mounts.push(MountTrace {
             label: label.to_string(),
             measured,

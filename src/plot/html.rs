@@ -76,7 +76,11 @@ fn table_from_csv(csv_text: &str) -> String {
         s += "<tr>";
         for c in &rec {
             let num = c.parse::<f64>().is_ok();
-            s += &format!("<td{}>{}</td>", if num { " class=\"n\"" } else { "" }, esc(c));
+            s += &format!(
+                "<td{}>{}</td>",
+                if num { " class=\"n\"" } else { "" },
+                esc(c)
+            );
         }
         s += "</tr>\n";
     }
@@ -125,10 +129,7 @@ fn run_section(file: &str, run: &RunFile) -> String {
             "record",
             format!(
                 "{} samples, FFT {} lines, resolution {:.3} Hz, line spacing {:.3} Hz",
-                st.fft.record_samples,
-                st.fft.fft_len,
-                st.fft.resolution_hz,
-                st.fft.line_spacing_hz
+                st.fft.record_samples, st.fft.fft_len, st.fft.resolution_hz, st.fft.line_spacing_hz
             ),
         ),
         (
@@ -189,7 +190,8 @@ fn run_section(file: &str, run: &RunFile) -> String {
                 "<tr><td class=\"n\">{}</td><td class=\"n\">{:.2}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{:.1}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>\n",
                 i + 1,
                 m.frequency_hz,
-                m.damping_ratio.map_or("-".into(), |z| format!("{:.2}", 100.0 * z)),
+                m.damping_ratio
+                    .map_or("-".into(), |z| format!("{:.2}", 100.0 * z)),
                 m.q.map_or("-".into(), |q| format!("{q:.1}")),
                 m.coherence.map_or("-".into(), |c| format!("{c:.3}")),
                 m.prominence_db,
@@ -226,9 +228,14 @@ fn run_section(file: &str, run: &RunFile) -> String {
 
 /// The whole report as HTML text.
 pub fn report_html(r: &ReportInput<'_>) -> String {
-    let mut s = String::from("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\"/>\n");
+    let mut s =
+        String::from("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\"/>\n");
     s += "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\"/>\n";
-    s += &format!("<title>{}</title>\n<style>{}</style>\n</head>\n<body>\n", esc(r.title), STYLE);
+    s += &format!(
+        "<title>{}</title>\n<style>{}</style>\n</head>\n<body>\n",
+        esc(r.title),
+        STYLE
+    );
     s += &format!("<h1>{}</h1>\n", esc(r.title));
     s += &format!(
         "<p class=\"small\">Made by tapmodes {} on {} from {} run file{}.</p>\n",
@@ -251,10 +258,7 @@ pub fn report_html(r: &ReportInput<'_>) -> String {
     s += strip_prolog(r.svg);
     s += "\n</div>\n";
     if let (Some(c), Some(csv_text)) = (r.comparison, r.comparison_csv) {
-        s += &format!(
-            "<h2>Comparison against {}</h2>\n",
-            esc(&c.baseline)
-        );
+        s += &format!("<h2>Comparison against {}</h2>\n", esc(&c.baseline));
         for v in &c.variants {
             s += &format!("<p><b>{}</b>: {}</p>\n", esc(&v.label), esc(&v.summary));
         }
@@ -270,7 +274,10 @@ pub fn report_html(r: &ReportInput<'_>) -> String {
     for (file, run) in r.runs {
         s += &run_section(file, run);
     }
-    s += &format!("<p class=\"small\">{}</p>\n</body>\n</html>\n", esc(r.safety));
+    s += &format!(
+        "<p class=\"small\">{}</p>\n</body>\n</html>\n",
+        esc(r.safety)
+    );
     s
 }
 
@@ -289,10 +296,15 @@ mod tests {
 
     #[test]
     fn escaping_and_prolog() {
-        assert_eq!(esc("<a href=\"x\">&'"), "&lt;a href=&quot;x&quot;&gt;&amp;&#39;");
+        assert_eq!(
+            esc("<a href=\"x\">&'"),
+            "&lt;a href=&quot;x&quot;&gt;&amp;&#39;"
+        );
         assert_eq!(strip_prolog("<?xml version=\"1.0\"?>\n<svg/>"), "<svg/>");
         assert_eq!(strip_prolog("<svg/>"), "<svg/>");
         let t = table_from_csv("a_hz,b\n1.5,x<y\n");
-        assert!(t.contains("<th>a_hz</th>") && t.contains("x&lt;y") && t.contains("class=\"n\">1.5"));
+        assert!(
+            t.contains("<th>a_hz</th>") && t.contains("x&lt;y") && t.contains("class=\"n\">1.5")
+        );
     }
 }

@@ -17,7 +17,7 @@ use crate::modes::softmount::MountFit;
 use plotters::coord::Shift;
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
-pub use style::{TraceStyle, trace_style};
+pub use style::{PALETTE, TraceStyle, trace_style};
 
 /// One run's curve, as drawn.
 #[derive(Debug, Clone, PartialEq)]
@@ -386,7 +386,11 @@ fn y_range(fig: &Figure, name: &str, o: &PlotOptions, range: (f64, f64)) -> (f64
                 lo = lo.min(m.fit.model_db(range.1));
             }
             let hi = if hi.is_finite() { hi + 5.0 } else { 20.0 };
-            let lo = if lo.is_finite() { lo.max(hi - 80.0) - 5.0 } else { -40.0 };
+            let lo = if lo.is_finite() {
+                lo.max(hi - 80.0) - 5.0
+            } else {
+                -40.0
+            };
             (lo, hi.max(lo + 10.0))
         }
         _ => {
@@ -419,7 +423,10 @@ fn y_range(fig: &Figure, name: &str, o: &PlotOptions, range: (f64, f64)) -> (f64
                 let hi = hi_db + (hi_db - lo) * (0.06 + 0.06 * rows);
                 (lo, hi)
             } else {
-                (0.0, level(hi_db, false) * (1.08 + 0.06 * fig.traces.len().min(4) as f64))
+                (
+                    0.0,
+                    level(hi_db, false) * (1.08 + 0.06 * fig.traces.len().min(4) as f64),
+                )
             }
         }
     }
@@ -461,7 +468,11 @@ fn draw_panel(
         .configure_mesh()
         .disable_x_mesh()
         .x_labels(0)
-        .y_labels(if name == "magnitude" || name == "transmissibility" { 8 } else { 4 })
+        .y_labels(if name == "magnitude" || name == "transmissibility" {
+            8
+        } else {
+            4
+        })
         .y_desc(y_desc)
         .y_label_formatter(&|v: &f64| {
             if name == "coherence" || (name == "magnitude" && !o.db) {
@@ -505,7 +516,10 @@ fn draw_panel(
     if bottom {
         area.draw(&Text::new(
             "frequency, Hz",
-            rel(area, ((panel.x_px.0 + panel.x_px.1) / 2 - 40, panel.y_px.1 + 22)),
+            rel(
+                area,
+                ((panel.x_px.0 + panel.x_px.1) / 2 - 40, panel.y_px.1 + 22),
+            ),
             (FONT, 13).into_font().color(&BLACK),
         ))
         .map_err(draw_err)?;
@@ -618,7 +632,12 @@ type Chart<'a, 'b> = ChartContext<
     Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
 >;
 
-fn draw_line(chart: &mut Chart<'_, '_>, pts: Vec<(f64, f64)>, st: &TraceStyle, w: u32) -> Result<()> {
+fn draw_line(
+    chart: &mut Chart<'_, '_>,
+    pts: Vec<(f64, f64)>,
+    st: &TraceStyle,
+    w: u32,
+) -> Result<()> {
     let style = st.color.stroke_width(w);
     match st.dash {
         None => chart
@@ -826,7 +845,10 @@ mod tests {
     #[test]
     fn thinning_keeps_peaks_in_order() {
         let f: Vec<f64> = (1..=1000).map(|k| k as f64).collect();
-        let v: Vec<f64> = f.iter().map(|x| if *x == 500.0 { 10.0 } else { 0.0 }).collect();
+        let v: Vec<f64> = f
+            .iter()
+            .map(|x| if *x == 500.0 { 10.0 } else { 0.0 })
+            .collect();
         let p = thin(&f, &v, (1.0, 1000.0), false, 50);
         assert!(p.len() <= 101);
         assert!(p.iter().any(|q| q.1 == 10.0 && q.0 == 500.0));
@@ -835,7 +857,10 @@ mod tests {
 
     #[test]
     fn ticks_are_round() {
-        assert_eq!(nice_ticks(20.0, 3200.0, true)[..4], [20.0, 50.0, 100.0, 200.0]);
+        assert_eq!(
+            nice_ticks(20.0, 3200.0, true)[..4],
+            [20.0, 50.0, 100.0, 200.0]
+        );
         assert_eq!(nice_ticks(0.0, 100.0, false)[..3], [0.0, 20.0, 40.0]);
     }
 }

@@ -40,7 +40,10 @@ pub fn fonts() -> Result<usvg::fontdb::Database> {
 }
 
 /// Render SVG text to a pixmap with the given fonts (tests use this to look at pictures).
-pub fn rasterize(svg: &str, db: std::sync::Arc<usvg::fontdb::Database>) -> Result<tiny_skia::Pixmap> {
+pub fn rasterize(
+    svg: &str,
+    db: std::sync::Arc<usvg::fontdb::Database>,
+) -> Result<tiny_skia::Pixmap> {
     let opt = usvg::Options {
         fontdb: db,
         ..usvg::Options::default()

@@ -40,10 +40,7 @@ pub fn parse_curve_csv(text: &str) -> Result<SavedCurve> {
     let f_col = col("frequency_hz").ok_or_else(|| Error::new("no frequency_hz column"))?;
     let db_col = col("magnitude_db").ok_or_else(|| Error::new("no magnitude_db column"))?;
     let coh_col = col("coherence");
-    let mut optional = [
-        Column::new(col("phase_deg")),
-        Column::new(col("spread_db")),
-    ];
+    let mut optional = [Column::new(col("phase_deg")), Column::new(col("spread_db"))];
     let unit = headers
         .iter()
         .find_map(|h| h.strip_prefix("magnitude_").filter(|u| *u != "db"))
