@@ -569,3 +569,37 @@ fn bad_inputs_and_outputs_get_one_sentence() {
     assert_eq!(code, 1);
     assert!(err.contains("nothing to plot"), "{err}");
 }
+
+#[test]
+fn app_key_writes_the_current_view_beside_the_runs() {
+    use tapmodes::tui::{App, Launch};
+    let d = temp_dir("app-picture");
+    let launch = Launch::simulated("tm9-arm-solid", 1, Some(6.0), true, false, d.clone()).unwrap();
+    let mut app = App::headless(launch).unwrap();
+    app.pump_seconds(6.0);
+    app.press('w');
+    let notice = app.model.notice.clone().unwrap_or_default();
+    assert!(notice.starts_with("wrote "), "{notice}");
+    let svg = d.join(format!(
+        "{}-view.svg",
+        if app.model.label.is_empty() {
+            "live".to_string()
+        } else {
+            app.model.label.clone()
+        }
+    ));
+    let text = std::fs::read_to_string(&svg).unwrap();
+    let r = render(&text);
+    // The live trace in the first colour somewhere in the picture; a second press never
+    // replaces the first picture.
+    assert!(
+        r.pixels()
+            .iter()
+            .any(|p| near((p.red(), p.green(), p.blue()), rgb(0), 10))
+    );
+    app.press('w');
+    assert!(
+        d.join(svg.file_stem().unwrap().to_str().unwrap().to_string() + "-2.svg")
+            .exists()
+    );
+}

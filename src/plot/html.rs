@@ -128,7 +128,7 @@ fn run_section(file: &str, run: &RunFile) -> String {
         (
             "record",
             format!(
-                "{} samples, FFT {} lines, resolution {:.3} Hz, line spacing {:.3} Hz",
+                "{} samples, FFT length {}, resolution {:.3} Hz, line spacing {:.3} Hz",
                 st.fft.record_samples, st.fft.fft_len, st.fft.resolution_hz, st.fft.line_spacing_hz
             ),
         ),

@@ -10,6 +10,7 @@ pub mod build;
 pub mod html;
 pub mod raster;
 mod style;
+pub mod view;
 
 use crate::drive::Band;
 use crate::error::{Error, Result};

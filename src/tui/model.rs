@@ -25,6 +25,8 @@ pub const MAX_LABEL: usize = 40;
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Action {
     Help,
+    /// Write the current view as an SVG picture beside the run files.
+    Picture,
     Arm,
     LevelUp,
     LevelDown,
@@ -74,6 +76,7 @@ pub const KEYS: &[(&str, Action, &str)] = &[
     ("l", Action::Label, "set the variant label"),
     ("s", Action::Save, "save WAV + JSON + CSV now"),
     ("p", Action::Picker, "overlay/compare saved runs"),
+    ("w", Action::Picture, "write this view as SVG"),
     ("c", Action::Panel, "modes / compare panel"),
     ("Space", Action::Tap, "simulated tap (demo)"),
     ("t", Action::AutoTap, "auto taps on/off (demo)"),
@@ -120,6 +123,7 @@ pub fn action_for(key: &KeyEvent) -> Option<Action> {
         KeyCode::Char('l') => Action::Label,
         KeyCode::Char('s') => Action::Save,
         KeyCode::Char('p') => Action::Picker,
+        KeyCode::Char('w') => Action::Picture,
         KeyCode::Char('c') | KeyCode::Tab => Action::Panel,
         KeyCode::Char(' ') => Action::Tap,
         KeyCode::Char('t') => Action::AutoTap,
@@ -176,6 +180,8 @@ pub enum Effect {
     ListRuns,
     /// Load these runs (then `Msg::Loaded`).
     LoadRuns(Vec<PathBuf>),
+    /// Write the current view's plot beside the run files (`plot::view`).
+    WritePicture,
     Quit,
 }
 
@@ -628,6 +634,7 @@ fn act(m: &mut Model, a: Action, fx: &mut Vec<Effect>) {
             }
         }
         Action::Picker => fx.push(Effect::ListRuns),
+        Action::Picture => fx.push(Effect::WritePicture),
         Action::Panel => {
             m.panel = match m.panel {
                 Panel::Modes => Panel::Compare,
