@@ -4,7 +4,7 @@
 use super::plot::{LookArgs, check_picture_out, load, nothing_drawn};
 use crate::error::Result;
 use crate::plot::html::{ReportInput, report_html};
-use crate::run::compare::render::render_csv;
+use crate::run::compare::render::{render_csv, render_table};
 use crate::run::compare::{CompareOptions, compare_with};
 use clap::Args;
 use std::path::PathBuf;
@@ -62,7 +62,8 @@ pub fn run(a: &ReportArgs) -> Result<()> {
             }
         }
         let csv = render_csv(&c)?;
-        (Some(c), Some(csv))
+        let text = render_table(&c);
+        (Some(c), Some((csv, text)))
     } else {
         warnings.push("one run: no comparison (give two runs or more)".into());
         (None, None)
@@ -89,7 +90,8 @@ pub fn run(a: &ReportArgs) -> Result<()> {
         runs: &loaded.runs,
         svg: &rendered.svg,
         comparison: comparison.as_ref(),
-        comparison_csv: csv.as_deref(),
+        comparison_csv: csv.as_ref().map(|c| c.0.as_str()),
+        comparison_text: csv.as_ref().map(|c| c.1.as_str()),
         warnings: &warnings,
         created_utc: &created,
         safety: super::SAFETY,

@@ -29,6 +29,7 @@ h1 { font-size: 16pt; } h2 { font-size: 13pt; margin-top: 1.6em; border-bottom: 
 table { border-collapse: collapse; margin: 0.4em 0 1em 0; font-size: 9pt; }
 th, td { border: 1px solid #999; padding: 2px 5px; text-align: left; vertical-align: top; }
 th { background: #eee; }
+pre { white-space: pre-wrap; font-size: 8pt; }
 td.n { text-align: right; font-variant-numeric: tabular-nums; }
 .figure svg { width: 100%; height: auto; }
 .warn { border-left: 4px solid #000; padding-left: 0.6em; }
@@ -54,6 +55,8 @@ pub struct ReportInput<'a> {
     pub comparison: Option<&'a Comparison>,
     /// The comparison as CSV (`render::render_csv`), shown as the table.
     pub comparison_csv: Option<&'a str>,
+    /// The comparison as `compare` prints it (every section: mounts, bands, predictions).
+    pub comparison_text: Option<&'a str>,
     /// Sentences the reader must see (runs not drawn, setup differences, ...).
     pub warnings: &'a [String],
     pub created_utc: &'a str,
@@ -270,6 +273,12 @@ pub fn report_html(r: &ReportInput<'_>) -> String {
             c.settings.floor_damping_pct,
             esc(&c.settings.floor_source)
         );
+        if let Some(t) = r.comparison_text {
+            s += &format!(
+                "<h3>As printed by compare</h3>\n<pre class=\"small\">{}</pre>\n",
+                esc(t)
+            );
+        }
     }
     for (file, run) in r.runs {
         s += &run_section(file, run);

@@ -1,19 +1,11 @@
 //! SVG to PNG through resvg. The SVG names the generic "sans-serif" family and needs no
-//! font of its own; the PNG needs one to draw the text: the first sans-serif face found in
-//! the system's font folders (fontconfig's list), "DejaVu Sans" when present. Without any
-//! font the PNG is refused with a sentence saying so (the SVG still works).
+//! font of its own; the PNG needs one to draw the text: a regular upright sans-serif face
+//! from the system's font folders (fontconfig's list), chosen in name order so the same
+//! machine always gives the same picture. Without any font the PNG is refused with a
+//! sentence saying so (the SVG still works).
 
 use crate::error::{Error, Result};
 use resvg::{tiny_skia, usvg};
-
-/// Font families tried in order for "sans-serif" (common on Linux, macOS and Windows).
-const SANS: [&str; 5] = [
-    "DejaVu Sans",
-    "Liberation Sans",
-    "Noto Sans",
-    "Helvetica",
-    "Arial",
-];
 
 /// The system's fonts, with the generic sans-serif family pointed at one that exists.
 pub fn fonts() -> Result<usvg::fontdb::Database> {
@@ -21,20 +13,28 @@ pub fn fonts() -> Result<usvg::fontdb::Database> {
     db.load_system_fonts();
     if db.is_empty() {
         crate::fail!(
-            "a PNG needs a font to draw its text and none was found in the system's font folders; install one (on Debian: fonts-dejavu-core) or write an .svg"
+            "a PNG needs a font to draw its text and none was found in the system's font folders; install a TrueType or OpenType font package, or write an .svg"
         );
     }
-    let families: Vec<String> = db
+    // Regular, upright, proportional faces whose family says "Sans" (and not "Mono" or
+    // "Serif") first; then any regular proportional face; then any face at all.
+    let mut ranked: Vec<(u8, String)> = db
         .faces()
-        .flat_map(|f| f.families.iter().map(|(n, _)| n.clone()))
+        .filter_map(|f| {
+            let name = f.families.first()?.0.clone();
+            let regular = f.weight.0 == 400 && f.style == usvg::fontdb::Style::Normal;
+            let sans = name.contains("Sans") && !name.contains("Mono") && !name.contains("Serif");
+            let rank = match (regular && !f.monospaced, sans) {
+                (true, true) => 0,
+                (true, false) => 1,
+                _ => 2,
+            };
+            Some((rank, name))
+        })
         .collect();
-    let pick = SANS
-        .iter()
-        .find(|s| families.iter().any(|f| f == *s))
-        .map(|s| s.to_string())
-        .or_else(|| families.first().cloned());
-    if let Some(p) = pick {
-        db.set_sans_serif_family(p);
+    ranked.sort();
+    if let Some((_, name)) = ranked.into_iter().next() {
+        db.set_sans_serif_family(name);
     }
     Ok(db)
 }

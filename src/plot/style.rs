@@ -10,9 +10,9 @@ pub struct TraceStyle {
     pub dash: Option<(u32, u32)>,
 }
 
-/// The palette of Okabe and Ito ("Color Universal Design", 2002), chosen to stay apart for
-/// the common colour-vision deficiencies, ordered so that neighbours also differ in
-/// lightness (for grey printing).
+/// A colour-blind-safe palette (the widely used "colour universal design" set of eight
+/// colours, values from memory), chosen to stay apart for the common colour-vision
+/// deficiencies, ordered so that neighbours also differ in lightness (for grey printing).
 pub const PALETTE: [RGBColor; 7] = [
     RGBColor(0, 114, 178),   // blue
     RGBColor(213, 94, 0),    // vermillion
