@@ -299,7 +299,7 @@ fn response_spectrum_spread_and_mount_panel_are_drawn() {
 #[test]
 fn demo_runs_through_the_library_put_the_first_mode_on_its_peak() {
     let run = repo("recordings/arm-solid.json");
-    let loaded = tapmodes::cli::plot::load(&[run.clone()], true, None).unwrap();
+    let loaded = tapmodes::cli::plot::load(std::slice::from_ref(&run), true, None).unwrap();
     assert!(loaded.figure.notes.is_empty());
     let r = tapmodes::plot::render_svg(&loaded.figure, &PlotOptions::default()).unwrap();
     let pix = render(&r.svg);
