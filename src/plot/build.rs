@@ -1,9 +1,7 @@
-//! Figures from what the tool already holds: run files with their curve tables (the
-//! commands) or an analysis result (the app).
+//! Traces from what the tool already holds: run files with their curve tables.
 
-use super::{Figure, MountTrace, Trace};
+use super::{MountTrace, Trace};
 use crate::drive::Band;
-use crate::pipeline::AnalysisResult;
 use crate::run::RunFile;
 use crate::run::curve_read::SavedCurve;
 use crate::spectra::Curve;
@@ -25,21 +23,6 @@ pub fn trace_from_run(run: &RunFile, curve: &SavedCurve) -> Trace {
         coherence: curve.coherence.clone(),
         spread_db: curve.spread_db.clone(),
         modes_hz: run.modes.iter().map(|m| m.frequency_hz).collect(),
-    }
-}
-
-/// A trace from a live curve (the app's current view).
-pub fn trace_from_curve(label: &str, freqs: &[f64], curve: &Curve, modes_hz: Vec<f64>) -> Trace {
-    Trace {
-        label: label.to_string(),
-        kind: curve.basis.label().to_string(),
-        unit: curve.unit.clone(),
-        freqs: freqs.to_vec(),
-        magnitude_db: curve.magnitude.iter().map(|&m| db(m)).collect(),
-        phase_deg: curve.phase_deg.clone(),
-        coherence: curve.coherence.clone(),
-        spread_db: curve.spread_db.clone(),
-        modes_hz,
     }
 }
 
@@ -68,40 +51,4 @@ pub fn bands_of<'a>(runs: impl IntoIterator<Item = &'a RunFile>) -> Vec<Band> {
         }
     }
     out
-}
-
-/// The figure of an analysis in progress: its curve, modes, mount and the given bands.
-pub fn figure_from_result(label: &str, r: &AnalysisResult, bands: Vec<Band>) -> Figure {
-    let mut fig = Figure {
-        bands,
-        ..Figure::default()
-    };
-    match &r.curve {
-        Some(c) => fig.traces.push(trace_from_curve(
-            label,
-            &r.spectra.freqs,
-            c,
-            r.modes().iter().map(|m| m.frequency_hz).collect(),
-        )),
-        None => fig
-            .notes
-            .push(format!("{label}: no curve yet (no accepted hit)")),
-    }
-    if let Some(fit) = &r.mount {
-        let measured = r
-            .spectra
-            .curve(crate::spectra::Basis::Transmissibility)
-            .map(|c| {
-                (
-                    r.spectra.freqs.clone(),
-                    c.magnitude.iter().map(|&m| db(m)).collect(),
-                )
-            });
-        fig.mounts.push(MountTrace {
-            label: label.to_string(),
-            measured,
-            fit: fit.clone(),
-        });
-    }
-    fig
 }

@@ -2,9 +2,9 @@
 //! with its hit-to-hit spread), mode markers, the motors' excitation bands and a soft
 //! mount's transmissibility with its fitted model, as SVG (plotters) or PNG (resvg).
 //!
-//! The plot only renders what the pipeline and the run files hold (`Figure::from_run`,
-//! `Figure::from_result`); it computes nothing of its own beyond axis ranges and thinning
-//! the curves to the picture's resolution.
+//! The plot only renders what the run files (`build`) and the app's analysis snapshot
+//! (`view`) hold; it computes nothing of its own beyond axis ranges and thinning the curves
+//! to the picture's resolution.
 
 pub mod build;
 pub mod html;
@@ -738,12 +738,18 @@ fn draw_legend(area: &DrawingArea<SVGBackend, Shift>, panel: &Panel, fig: &Figur
         .enumerate()
         .map(|(i, t)| {
             let spread = if t.spread_db.is_some() {
-                ", band: hit-to-hit spread"
+                ", shade: hit-to-hit spread, 1 s.d."
             } else {
                 ""
             };
+            let n = t.modes_hz.len();
+            let modes = if n == 1 {
+                "1 mode".to_string()
+            } else {
+                format!("{n} modes")
+            };
             (
-                format!("{} ({} modes{spread})", t.label, t.modes_hz.len()),
+                format!("{} ({modes}{spread})", t.label),
                 trace_style(i),
                 false,
             )
