@@ -165,8 +165,8 @@ fn legend_labels_and_mode_frequencies_are_in_the_svg() {
         .filter_map(|n| n.text().map(|t| t.trim().to_string()))
         .collect();
     for want in [
-        "beam-a (1 modes)",
-        "beam-b (1 modes)",
+        "beam-a (1 mode)",
+        "beam-b (1 mode)",
         "300",
         "600",
         "rotation",
