@@ -538,15 +538,6 @@ fn draw_panel(
                 shade.filled(),
             )))
             .map_err(draw_err)?;
-        if name == "magnitude" {
-            let x = panel.x_of(lo) as i32 + 3;
-            area.draw(&Text::new(
-                b.name.clone(),
-                rel(area, (x, panel.y_px.1 - 16 - 14 * (i as i32 % 3))),
-                (FONT, 12).into_font().color(&RGBColor(60, 60, 60)),
-            ))
-            .map_err(draw_err)?;
-        }
     }
     let cols = (panel.x_px.1 - panel.x_px.0).max(100) as usize;
     match name {
@@ -622,6 +613,29 @@ fn draw_panel(
             if name == "magnitude" {
                 draw_legend(area, &panel, fig)?;
             }
+        }
+    }
+    // Band names last, on a light ground so curves do not hide them, staggered in rows.
+    if name == "magnitude" {
+        for (i, b) in fig.bands.iter().enumerate() {
+            let (lo, hi) = (b.hz.0.max(range.0), b.hz.1.min(range.1));
+            if lo >= hi {
+                continue;
+            }
+            let x = panel.x_of(lo) as i32 + 3;
+            let y = panel.y_px.1 - 18 - 15 * (i as i32 % 3);
+            let w = 6 * b.name.chars().count() as i32 + 6;
+            area.draw(&Rectangle::new(
+                [rel(area, (x - 2, y - 1)), rel(area, (x + w, y + 14))],
+                WHITE.mix(0.8).filled(),
+            ))
+            .map_err(draw_err)?;
+            area.draw(&Text::new(
+                b.name.clone(),
+                rel(area, (x, y)),
+                (FONT, 12).into_font().color(&RGBColor(40, 40, 40)),
+            ))
+            .map_err(draw_err)?;
         }
     }
     Ok(panel)
