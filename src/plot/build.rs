@@ -40,15 +40,44 @@ pub fn mount_trace(
     })
 }
 
-/// The bands of the runs' drive sections, each band once (same name and edges).
+/// The bands of the runs' drive sections, each band once (same name and edges), names
+/// cleaned, bands with edges that are not numbers left out.
 pub fn bands_of<'a>(runs: impl IntoIterator<Item = &'a RunFile>) -> Vec<Band> {
     let mut out: Vec<Band> = Vec::new();
     for r in runs {
         for b in r.drive.iter().flat_map(|d| d.bands.iter()) {
-            if !out.contains(b) {
-                out.push(b.clone());
+            // Names from an untrusted file: cleaned of control characters like the run's
+            // other texts (they end up in SVG and HTML).
+            let b = Band {
+                name: crate::run::validate::clean_text(&b.name, false),
+                hz: b.hz,
+            };
+            if b.hz.0.is_finite() && b.hz.1.is_finite() && !out.contains(&b) {
+                out.push(b);
             }
         }
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn band_names_from_files_are_cleaned_and_kept_once() {
+        let text = std::fs::read_to_string(concat!(
+            env!("CARGO_MANIFEST_DIR"),
+            "/recordings/arm-solid.json"
+        ))
+        .unwrap();
+        let mut run = RunFile::from_json(&text, "arm-solid.json").unwrap();
+        let drive = crate::drive::Drive::from_rpm((6000.0, 24000.0), 2).unwrap();
+        let mut section = drive.section();
+        section.bands[0].name = "rot\u{1b}[31mation".into();
+        run.drive = Some(section);
+        let bands = bands_of([&run, &run]);
+        assert_eq!(bands.len(), run.drive.as_ref().unwrap().bands.len());
+        assert!(bands.iter().all(|b| !b.name.chars().any(char::is_control)));
+    }
 }
