@@ -8,6 +8,7 @@ pub mod error; // errors as values: one sentence with context
 pub mod hits; // trigger, pre-trigger ring, per-hit verdicts
 pub mod modes; // peak picking, half-power damping, flags
 pub mod pipeline; // the one pipeline every front end drives
+pub mod plot; // pictures (SVG, PNG) and the HTML report of runs
 pub mod rng; // seeded random numbers for the simulator
 pub mod run; // run files (WAV, JSON, CSV), atomic writes, comparison
 pub mod signal; // channels, roles, units and sample blocks

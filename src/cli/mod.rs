@@ -6,6 +6,8 @@ pub(crate) mod args;
 pub(crate) mod capture;
 pub(crate) mod compare;
 pub(crate) mod drive_args;
+pub(crate) mod html_report;
+pub mod plot;
 pub(crate) mod ports;
 pub(crate) mod report;
 pub(crate) mod simulate;
@@ -15,7 +17,7 @@ pub(crate) mod tui;
 use crate::error::Result;
 use clap::{Parser, Subcommand};
 
-pub const SAFETY: &str = "Safety: take the propellers off, disconnect the flight battery and secure the \
+pub(crate) const SAFETY: &str = "Safety: take the propellers off, disconnect the flight battery and secure the \
 craft before tapping it; tap gently. This tool's findings do not replace the manufacturer's \
 guidance, local rules or a careful first hover; the motor-band verdicts are estimates from \
 nameplate values, guidance only. No motor is run.";
@@ -41,6 +43,10 @@ pub(crate) enum Command {
     Analyze(Box<analyze::AnalyzeArgs>),
     /// Compare the mode lists of variants against the first one.
     Compare(compare::CompareArgs),
+    /// Write a picture (SVG or PNG) of runs: FRF magnitude, phase, coherence, modes, bands.
+    Plot(Box<plot::PlotArgs>),
+    /// Write one self-contained HTML page: plot, comparison, setups, hits, notes, warnings.
+    Report(Box<html_report::ReportArgs>),
     /// Change a run file's label, note or mass (grams) after the fact.
     Amend(amend::AmendArgs),
     /// Capture hits live (serial, sound card, replay or the simulated bench) without the app.
@@ -59,6 +65,8 @@ pub fn run(cli: Cli) -> Result<()> {
         Some(Command::Compare(a)) => compare::run(&a),
         Some(Command::Capture(a)) => capture::run(&a),
         Some(Command::Amend(a)) => amend::run(&a),
+        Some(Command::Plot(a)) => plot::run(&a),
+        Some(Command::Report(a)) => html_report::run(&a),
         Some(Command::Ports) => ports::ports(),
         Some(Command::Devices) => ports::devices(),
         None => {

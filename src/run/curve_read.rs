@@ -11,6 +11,10 @@ pub struct SavedCurve {
     pub magnitude_db: Vec<f64>,
     /// Coherence per line, when the CSV has it.
     pub coherence: Option<Vec<f64>>,
+    /// Phase in degrees per line, when the CSV has it.
+    pub phase_deg: Option<Vec<f64>>,
+    /// Hit-to-hit spread in dB per line (response spectrum), when the CSV has it.
+    pub spread_db: Option<Vec<f64>>,
     /// Unit of the magnitude, from the column name (e.g. "g/N").
     pub unit: String,
 }
@@ -36,6 +40,7 @@ pub fn parse_curve_csv(text: &str) -> Result<SavedCurve> {
     let f_col = col("frequency_hz").ok_or_else(|| Error::new("no frequency_hz column"))?;
     let db_col = col("magnitude_db").ok_or_else(|| Error::new("no magnitude_db column"))?;
     let coh_col = col("coherence");
+    let mut optional = [Column::new(col("phase_deg")), Column::new(col("spread_db"))];
     let unit = headers
         .iter()
         .find_map(|h| h.strip_prefix("magnitude_").filter(|u| *u != "db"))
@@ -61,7 +66,11 @@ pub fn parse_curve_csv(text: &str) -> Result<SavedCurve> {
             },
             _ => all_coherence = false,
         }
+        for c in &mut optional {
+            c.take(&rec);
+        }
     }
+    let [phase, spread] = optional;
     if freqs.is_empty() {
         crate::fail!("the curve has no rows");
     }
@@ -69,8 +78,35 @@ pub fn parse_curve_csv(text: &str) -> Result<SavedCurve> {
         freqs,
         magnitude_db,
         coherence: all_coherence.then_some(coherence),
+        phase_deg: phase.finish(),
+        spread_db: spread.finish(),
         unit,
     })
+}
+
+/// An optional numeric column: kept only when every row holds a number.
+struct Column {
+    index: Option<usize>,
+    values: Vec<f64>,
+}
+
+impl Column {
+    fn new(index: Option<usize>) -> Self {
+        Column {
+            index,
+            values: Vec::new(),
+        }
+    }
+    fn take(&mut self, rec: &csv::StringRecord) {
+        let Some(i) = self.index else { return };
+        match rec.get(i).unwrap_or("").trim().parse::<f64>() {
+            Ok(v) if v.is_finite() => self.values.push(v),
+            _ => self.index = None,
+        }
+    }
+    fn finish(self) -> Option<Vec<f64>> {
+        self.index.map(|_| self.values)
+    }
 }
 
 #[cfg(test)]
@@ -87,11 +123,15 @@ mod tests {
         assert_eq!(c.magnitude_db, vec![-20.0, -13.979]);
         assert_eq!(c.coherence, Some(vec![0.95, 0.99]));
         assert_eq!(c.unit, "g/N");
+        assert_eq!(c.phase_deg, Some(vec![10.0, 12.0]));
+        assert_eq!(c.spread_db, None);
         let spec = "frequency_hz,magnitude_g/Hz,magnitude_db,phase_deg,coherence,spread_db\n\
                     20.0000,1.0e-3,-60.000,,,0.5\n";
         let c = parse_curve_csv(spec).unwrap();
         assert_eq!(c.coherence, None);
         assert_eq!(c.unit, "g/Hz");
+        assert_eq!(c.spread_db, Some(vec![0.5]));
+        assert_eq!(c.phase_deg, None);
         assert!(parse_curve_csv("a,b\n1,2\n").is_err());
         assert!(parse_curve_csv("frequency_hz,magnitude_db\n1,x\n").is_err());
     }

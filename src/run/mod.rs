@@ -3,6 +3,7 @@
 pub(crate) mod atomic;
 pub mod compare;
 pub mod curve_read;
+pub mod modes_csv;
 pub mod naming;
 pub mod recording;
 pub mod reopen;

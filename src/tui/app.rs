@@ -170,6 +170,12 @@ impl App {
                 let loaded = paths.iter().map(|p| load_run(p)).collect();
                 self.dispatch(Msg::Loaded(loaded));
             }
+            Effect::WritePicture => {
+                self.model.notice = Some(match crate::plot::view::write_view(&self.model) {
+                    Ok(path) => format!("wrote {}", path.display()),
+                    Err(e) => e.to_string(),
+                });
+            }
             Effect::Quit => self.shutdown(),
         }
     }

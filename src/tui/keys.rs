@@ -6,6 +6,8 @@ use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Action {
     Help,
+    /// Write the current view as an SVG picture beside the run files.
+    Picture,
     Arm,
     LevelUp,
     LevelDown,
@@ -55,6 +57,7 @@ pub const KEYS: &[(&str, Action, &str)] = &[
     ("l", Action::Label, "set the variant label"),
     ("s", Action::Save, "save WAV + JSON + CSV now"),
     ("p", Action::Picker, "overlay/compare saved runs"),
+    ("w", Action::Picture, "write this view as SVG"),
     ("c", Action::Panel, "modes / compare panel"),
     ("Space", Action::Tap, "simulated tap (demo)"),
     ("t", Action::AutoTap, "auto taps on/off (demo)"),
@@ -101,6 +104,7 @@ pub fn action_for(key: &KeyEvent) -> Option<Action> {
         KeyCode::Char('l') => Action::Label,
         KeyCode::Char('s') => Action::Save,
         KeyCode::Char('p') => Action::Picker,
+        KeyCode::Char('w') => Action::Picture,
         KeyCode::Char('c') | KeyCode::Tab => Action::Panel,
         KeyCode::Char(' ') => Action::Tap,
         KeyCode::Char('t') => Action::AutoTap,

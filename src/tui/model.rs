@@ -69,6 +69,8 @@ pub enum Effect {
     ListRuns,
     /// Load these runs (then `Msg::Loaded`).
     LoadRuns(Vec<PathBuf>),
+    /// Write the current view's plot beside the run files (`plot::view`).
+    WritePicture,
     Quit,
 }
 
@@ -528,6 +530,7 @@ fn act(m: &mut Model, a: Action, fx: &mut Vec<Effect>) {
             }
         }
         Action::Picker => fx.push(Effect::ListRuns),
+        Action::Picture => fx.push(Effect::WritePicture),
         Action::Panel => {
             m.panel = match m.panel {
                 Panel::Modes => Panel::Compare,

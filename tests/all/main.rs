@@ -20,6 +20,7 @@ mod hostile_fuzz;
 mod hostile_outputs;
 mod hostile_serial;
 mod independent_recordings;
+mod plot_pictures;
 mod serial_pty;
 mod tui_tmux;
 mod tui_update;

@@ -49,7 +49,7 @@ fn keys_map_to_actions() {
     assert_eq!(action_for(&k('Q')), None);
     // Every action in the help has a key that maps to it.
     for (_, action, _) in tapmodes::tui::model::KEYS {
-        let found = "?a+-yxevio0g,.mlspctnq "
+        let found = "?a+-yxevio0g,.mlspwctnq "
             .chars()
             .map(k)
             .chain(
