@@ -11,6 +11,7 @@ pub mod ports;
 pub mod report;
 pub mod simulate;
 pub mod source_args;
+pub mod strip;
 pub mod tui;
 
 use crate::error::Result;
@@ -52,6 +53,12 @@ pub enum Command {
     Devices,
     /// Benchmarks: speed and memory, decoder throughput, accuracy, app latency.
     Bench(bench::BenchArgs),
+    /// Young's and shear modulus of a free strip from its first flexural and torsional modes.
+    Strip(Box<strip::StripArgs>),
+    /// Compare strip files (E and G side by side, the first as baseline).
+    StripCompare(strip::StripCompareArgs),
+    /// Make a recording of taps on a simulated free-free strip of known E and G.
+    StripDemo(strip::StripDemoArgs),
 }
 
 pub fn run(cli: Cli) -> Result<()> {
@@ -65,6 +72,9 @@ pub fn run(cli: Cli) -> Result<()> {
         Some(Command::Ports) => ports::ports(),
         Some(Command::Devices) => ports::devices(),
         Some(Command::Bench(a)) => bench::run(&a),
+        Some(Command::Strip(a)) => strip::run(&a),
+        Some(Command::StripCompare(a)) => strip::compare_run(&a),
+        Some(Command::StripDemo(a)) => strip::demo_run(&a),
         None => {
             // No command: the app on the simulated bench, with every default.
             #[derive(Parser)]
