@@ -13,6 +13,6 @@ pub mod rng; // seeded random numbers for the simulator
 pub mod run; // run files (WAV, JSON, CSV), atomic writes, comparison
 pub mod signal; // channels, roles, units and sample blocks
 pub mod source; // WAV replay, simulator (later: serial, audio)
-pub mod strip; // E and G of a free strip (ASTM E1876), strip files and their comparison
 pub mod spectra; // windows, FFT, averaged spectra, H1/H2/coherence
+pub mod strip; // E and G of a free strip (ASTM E1876), strip files and their comparison
 pub mod tui; // the terminal app: model, update, view

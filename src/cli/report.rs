@@ -18,7 +18,9 @@ pub fn mode_table(modes: &[Mode]) -> String {
         });
         let z_ci = u
             .and_then(|u| u.damping_ratio.as_ref())
-            .map_or("-".to_string(), |z| format!("{:.2}", 50.0 * (z.high - z.low)));
+            .map_or("-".to_string(), |z| {
+                format!("{:.2}", 50.0 * (z.high - z.low))
+            });
         let from = match m.method.as_str() {
             "fit" => "band fit",
             "spectrum_fit" => "spectrum",
@@ -42,7 +44,8 @@ pub fn mode_table(modes: &[Mode]) -> String {
     }
     if !modes.is_empty() {
         s += "    damp: damping ratio; Q = 1 / (2 damp); coh: coherence at the peak (- with one\n";
-        s += "    hit); prom: dB the peak stands above its surroundings; +-f, +-d: half-widths of\n";
+        s +=
+            "    hit); prom: dB the peak stands above its surroundings; +-f, +-d: half-widths of\n";
         s += "    the 95 % intervals from the hit-to-hit spread (damping in percentage points);\n";
         s += "    from: band fit (several modes fitted together), spectrum (fit of the response\n";
         s += "    spectrum) or half-pwr (peak and half-power band).\n";

@@ -127,7 +127,12 @@ fn modes_of(path: &Path, a: &StripArgs) -> Result<(Vec<Mode>, bool, Vec<String>)
     let mut src = super::analyze::open_wav(path, &a.channels, &choice)?;
     let roles = choice.resolve(crate::source::Source::info(&src))?;
     let cfg = a.analysis.config()?;
-    validate::check_analysis(&cfg, crate::source::Source::info(&src), &roles, "the command line")?;
+    validate::check_analysis(
+        &cfg,
+        crate::source::Source::info(&src),
+        &roles,
+        "the command line",
+    )?;
     let analysis = analyse_source(&mut src, roles, cfg, false)?;
     let result = analysis.result();
     if analysis.accepted() == 0 {
@@ -148,7 +153,10 @@ pub fn run(a: &StripArgs) -> Result<()> {
         println!("{}", strip::GUIDE);
         return Ok(());
     }
-    let input = a.input.as_ref().expect("clap requires the input without --guide");
+    let input = a
+        .input
+        .as_ref()
+        .expect("clap requires the input without --guide");
     let strip = Strip::from_mm_g(
         positive("length-mm", a.length_mm)?,
         positive("width-mm", a.width_mm)?,
@@ -168,18 +176,21 @@ pub fn run(a: &StripArgs) -> Result<()> {
         crate::fail!("{p}");
     }
     if !(a.poisson.is_finite() && (-1.0..0.5).contains(&a.poisson)) {
-        crate::fail!(
-            "--poisson must lie between -1 and 0.5 (got {})",
-            a.poisson
-        );
+        crate::fail!("--poisson must lie between -1 and 0.5 (got {})", a.poisson);
     }
-    for (name, v) in [("flexural-hz", a.flexural_hz), ("torsional-hz", a.torsional_hz)] {
+    for (name, v) in [
+        ("flexural-hz", a.flexural_hz),
+        ("torsional-hz", a.torsional_hz),
+    ] {
         if let Some(v) = v {
             positive(name, Some(v))?;
         }
     }
     if let Some(out) = &a.out {
-        if !out.extension().is_some_and(|e| e.eq_ignore_ascii_case("json")) {
+        if !out
+            .extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("json"))
+        {
             crate::fail!("--out must name a .json file (not '{}')", out.display());
         }
         let mut inputs: Vec<&Path> = vec![input];
@@ -220,7 +231,10 @@ pub fn run(a: &StripArgs) -> Result<()> {
                 .file_stem()
                 .map_or("strip".into(), |s| s.to_string_lossy().into_owned())
         });
-    print!("{}", render(&label, &modes, &id, corners.as_deref(), &result));
+    print!(
+        "{}",
+        render(&label, &modes, &id, corners.as_deref(), &result)
+    );
     for n in &analysis_notes {
         println!("note (analysis): {n}");
     }
@@ -360,7 +374,11 @@ pub fn demo_run(a: &StripDemoArgs) -> Result<()> {
     if a.taps == 0 {
         crate::fail!("--taps must be at least 1");
     }
-    if !a.out.extension().is_some_and(|e| e.eq_ignore_ascii_case("wav")) {
+    if !a
+        .out
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("wav"))
+    {
         crate::fail!("the recording must end in .wav (not '{}')", a.out.display());
     }
     safe_path::check_output(&a.out, FileKind::Wav, &[])?;
@@ -372,7 +390,9 @@ pub fn demo_run(a: &StripDemoArgs) -> Result<()> {
         youngs_pa: a.e_gpa * 1e9,
         shear_pa: a.g_gpa * 1e9,
     };
-    if let Some(p) = Strip::from_mm_g(a.length_mm, a.width_mm, a.thickness_mm, b.mass_kg() * 1e3).problem() {
+    if let Some(p) =
+        Strip::from_mm_g(a.length_mm, a.width_mm, a.thickness_mm, b.mass_kg() * 1e3).problem()
+    {
         crate::fail!("{p}");
     }
     let half = b.width_m / 2.0;

@@ -61,7 +61,8 @@ impl Bar {
     pub fn torsional_hz(&self, k: usize) -> f64 {
         let (l, b, t) = (self.length_m, self.width_m, self.thickness_m);
         let ip = b * t * (b * b + t * t) / 12.0;
-        k as f64 / (2.0 * l) * (self.shear_pa * self.torsion_constant() / (self.density * ip)).sqrt()
+        k as f64 / (2.0 * l)
+            * (self.shear_pa * self.torsion_constant() / (self.density * ip)).sqrt()
     }
 
     /// Modes (frequency, modal constant in 1/kg) for a tap at `(x_tap, y_tap)` and a sensor
@@ -74,7 +75,11 @@ impl Bar {
         let m = self.mass_kg();
         let end = |n: usize, x: f64| -> f64 {
             // 2 at x = 0; (-1)^(n+1) 2 at x = L.
-            if x < 0.5 { 2.0 } else if n % 2 == 1 { 2.0 } else { -2.0 }
+            if x >= 0.5 && n.is_multiple_of(2) {
+                -2.0
+            } else {
+                2.0
+            }
         };
         let mut out = Vec::new();
         for n in 1..=3 {
@@ -197,7 +202,9 @@ pub fn write_wav(
         bits_per_sample: 32,
         sample_format: hound::SampleFormat::Float,
     };
-    let err = |e: hound::Error| crate::error::Error::new(format!("cannot write '{}': {e}", path.display()));
+    let err = |e: hound::Error| {
+        crate::error::Error::new(format!("cannot write '{}': {e}", path.display()))
+    };
     let mut w = hound::WavWriter::create(path, spec).map_err(err)?;
     for (f, a) in force.iter().zip(accel) {
         w.write_sample((f * gf) as f32).map_err(err)?;

@@ -55,6 +55,12 @@ impl StripFile {
 
     pub fn load(path: &Path) -> Result<Self> {
         safe_path::check_input(path)?;
+        if safe_path::kind_of(path) != Some(safe_path::FileKind::Json) {
+            crate::fail!(
+                "'{}' is not a strip file (written by `tapmodes strip --out`)",
+                path.display()
+            );
+        }
         let text = std::fs::read_to_string(path)
             .with_context(|| format!("cannot read '{}'", path.display()))?;
         let value: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
@@ -67,10 +73,7 @@ impl StripFile {
             );
         }
         serde_json::from_value(value).map_err(|e| {
-            crate::error::Error::new(format!(
-                "'{}' is a damaged strip file: {e}",
-                path.display()
-            ))
+            crate::error::Error::new(format!("'{}' is a damaged strip file: {e}", path.display()))
         })
     }
 }

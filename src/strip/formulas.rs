@@ -144,7 +144,12 @@ pub fn plausible_poisson(mu: f64) -> bool {
 /// E and, when the implied Poisson's ratio is plausible, the ratio used in T1: starts from
 /// `mu_assumed`, then iterates E -> mu -> T1 -> E as ASTM E1876 describes for isotropic
 /// material (from memory). Returns (E, mu used in T1, mu derived or None).
-pub fn youngs_iterated(strip: &Strip, ff: f64, g: Option<f64>, mu_assumed: f64) -> (f64, f64, Option<f64>) {
+pub fn youngs_iterated(
+    strip: &Strip,
+    ff: f64,
+    g: Option<f64>,
+    mu_assumed: f64,
+) -> (f64, f64, Option<f64>) {
     let mut mu = mu_assumed;
     let mut e = youngs_modulus(strip, ff, mu);
     let Some(g) = g else {

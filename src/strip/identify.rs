@@ -240,12 +240,17 @@ pub fn identify(
     roles[torsional] = "first torsional (G)".into();
     let ft = f(torsional);
     for (i, m) in modes.iter().enumerate() {
-        if roles[i] == "not used" && (m.frequency_hz - 2.0 * ft).abs() <= OVERTONE_TOLERANCE * 2.0 * ft {
+        if roles[i] == "not used"
+            && (m.frequency_hz - 2.0 * ft).abs() <= OVERTONE_TOLERANCE * 2.0 * ft
+        {
             roles[i] = "torsional 2 (2 x)".into();
         }
     }
     if let Some(c) = corners {
-        for (i, what, want) in [(flexural, "flexural", true), (torsional, "torsional", false)] {
+        for (i, what, want) in [
+            (flexural, "flexural", true),
+            (torsional, "torsional", false),
+        ] {
             if c[i] == Some(!want) {
                 notes.push(format!(
                     "warning: mode {} taken for the {what} mode has the residue-sign pattern of the other family between the corners",

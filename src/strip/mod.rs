@@ -264,7 +264,8 @@ mod tests {
         // (first-order propagation of a product of powers, common practice, no source).
         let f = |x: &[f64]| x[0].powi(3) / x[1].powi(3);
         let m = propagate(&f, &[2.0, 0.5], &[0.01, 0.002], &["a", "b"]);
-        let want = m.value_pa * ((3.0 * 0.01 / 2.0f64).powi(2) + (3.0 * 0.002 / 0.5f64).powi(2)).sqrt();
+        let want =
+            m.value_pa * ((3.0 * 0.01 / 2.0f64).powi(2) + (3.0 * 0.002 / 0.5f64).powi(2)).sqrt();
         assert!((m.standard_uncertainty_pa - want).abs() < 1e-6 * want);
         let shares: f64 = m.budget.iter().map(|b| b.1).sum();
         assert!((shares - 1.0).abs() < 1e-9);
