@@ -312,7 +312,7 @@ fn strips_compare_side_by_side() {
     let row = out.lines().find(|l| l.contains("lay-45")).unwrap();
     // G of the +-45 strip is 9 / 3.5 = 2.57 x the baseline's, far outside the uncertainty.
     assert!(row.contains("2.57*"), "{out}");
-    assert!(out.lines().all(|l| l.chars().count() <= 88), "{out}");
+    assert!(out.lines().all(|l| l.chars().count() <= 80), "{out}");
     let (code, _, err) = tapmodes(&[
         "strip-compare",
         a.to_str().unwrap(),

@@ -304,7 +304,7 @@ pub fn render(
             .as_ref()
             .filter(|u| u.hits >= 2)
             .map_or("-".to_string(), |u| {
-                format!("{:.2}", u.frequency_hz.std_error(u.hits))
+                format!("{:.3}", u.frequency_hz.std_error(u.hits))
             });
         let c = match corners.map(|c| c[i]) {
             None => "",

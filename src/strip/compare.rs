@@ -83,8 +83,7 @@ pub fn differs(a: f64, ua: f64, b: f64, ub: f64) -> bool {
     (a - b).abs() > ua.hypot(ub)
 }
 
-const HEAD: &str =
-    "  strip            E GPa     +-U   E/E0    G GPa     +-U   G/G0   E/G  f_fl Hz f_to Hz";
+const HEAD: &str = "  strip          E GPa   +-U  E/E0   G GPa   +-U   G/G0   E/G f_fl Hz f_to Hz";
 
 fn row(s: &StripFile, base: &StripFile, first: bool) -> String {
     let mark = |a: f64, ua: f64, b: f64, ub: f64| {
@@ -98,7 +97,7 @@ fn row(s: &StripFile, base: &StripFile, first: bool) -> String {
     };
     let label: String = s.label.chars().take(14).collect();
     format!(
-        "  {:<14} {:>7.2} {:>7.2} {:>5.2}{} {:>7.3} {:>7.3} {:>5.2}{} {:>5.2} {:>7.1} {:>7.1}",
+        "  {:<14}{:>6.2} {:>5.2} {:>5.2}{}{:>7.3} {:>5.3} {:>5.2}{} {:>5.2} {:>7.1} {:>7.1}",
         label,
         s.youngs_modulus_pa / 1e9,
         s.youngs_modulus_uncertainty_pa / 1e9,
@@ -143,13 +142,14 @@ pub fn render(strips: &[StripFile]) -> String {
             s.mass_g,
             s.density_kg_m3,
             s.poisson_ratio
-                .map_or(String::new(), |m| format!(", Poisson's ratio {m:.3}"))
+                .map_or(String::new(), |m| format!(", nu {m:.3}"))
         );
     }
-    out += "Legend: E Young's modulus (flexural), G shear modulus (torsional), both dynamic;\n";
-    out += "  +-U expanded uncertainty (k = 2, about 95 %) from the dimensions' tolerances and\n";
-    out += "  the frequency spread; E/E0, G/G0 ratio to the baseline strip: * differs by more\n";
-    out += "  than the combined uncertainty, = within it; f_fl, f_to first flexural and first\n";
-    out += "  torsional frequency.\n";
+    out += "Legend: E Young's modulus (flexural), G shear modulus (torsional), both\n";
+    out += "  dynamic; +-U expanded uncertainty (k = 2, about 95 %) from the dimensions'\n";
+    out += "  tolerances and the frequency spread; E/E0, G/G0 ratio to the baseline strip:\n";
+    out += "  * differs by more than the combined uncertainty, = within it; f_fl, f_to first\n";
+    out += "  flexural and first torsional frequency; nu E/(2G) - 1, Poisson's ratio only if\n";
+    out += "  the strip is isotropic.\n";
     out
 }
