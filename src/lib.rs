@@ -11,6 +11,7 @@ pub mod modes; // peak picking, half-power damping, flags
 pub mod pipeline; // the one pipeline every front end drives
 pub mod rng; // seeded random numbers for the simulator
 pub mod run; // run files (WAV, JSON, CSV), atomic writes, comparison
+pub mod shapes; // mode shapes over several points: shared-pole fit, MAC
 pub mod signal; // channels, roles, units and sample blocks
 pub mod source; // WAV replay, simulator (later: serial, audio)
 pub mod spectra; // windows, FFT, averaged spectra, H1/H2/coherence
