@@ -9,6 +9,7 @@ pub mod compare;
 pub mod drive_args;
 pub mod ports;
 pub mod report;
+pub mod shapes;
 pub mod simulate;
 pub mod source_args;
 pub mod strip;
@@ -59,6 +60,12 @@ pub enum Command {
     StripCompare(strip::StripCompareArgs),
     /// Make a recording of taps on a simulated free-free strip of known E and G.
     StripDemo(strip::StripDemoArgs),
+    /// Mode shapes from a plan of points (one recording per point), fitted with shared poles.
+    Shapes(Box<shapes::ShapesArgs>),
+    /// Pair the modes of two shape files by frequency order and shape (MAC).
+    ShapesCompare(shapes::ShapesCompareArgs),
+    /// Write a multi-point test of the simulated TM9 frame (plan and one recording per point).
+    ShapesDemo(shapes::ShapesDemoArgs),
 }
 
 pub fn run(cli: Cli) -> Result<()> {
@@ -75,6 +82,9 @@ pub fn run(cli: Cli) -> Result<()> {
         Some(Command::Strip(a)) => strip::run(&a),
         Some(Command::StripCompare(a)) => strip::compare_run(&a),
         Some(Command::StripDemo(a)) => strip::demo_run(&a),
+        Some(Command::Shapes(a)) => shapes::run(&a),
+        Some(Command::ShapesCompare(a)) => shapes::compare_run(&a),
+        Some(Command::ShapesDemo(a)) => shapes::demo_run(&a),
         None => {
             // No command: the app on the simulated bench, with every default.
             #[derive(Parser)]

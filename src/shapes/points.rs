@@ -193,12 +193,14 @@ impl ShapeFile {
 }
 
 /// Analyse every point's recording and return the common lines, the FRFs and each point's
-/// modes (frequency, damping).
+/// modes (frequency, apparent damping). Modes flagged for low coherence are not taken as
+/// seeds (each one left out is named in `notes`).
 #[allow(clippy::type_complexity)]
 pub fn analyse_points(
     plan: &Path,
     points: &[Point],
     open: &dyn Fn(&Path) -> Result<crate::pipeline::Analysis>,
+    notes: &mut Vec<String>,
 ) -> Result<(Vec<f64>, Vec<Vec<Complex64>>, Vec<Vec<(f64, f64)>>)> {
     let dir = plan.parent().unwrap_or(Path::new("."));
     let mut freqs: Option<Vec<f64>> = None;
@@ -235,18 +237,21 @@ pub fn analyse_points(
             Some(_) => {}
         }
         frfs.push(h);
-        modes.push(
-            result
-                .modes()
-                .iter()
-                .map(|m| {
-                    (
-                        m.frequency_hz,
-                        m.damping_ratio.unwrap_or(0.01).max(1e-3) + m.window_damping,
-                    )
-                })
-                .collect(),
-        );
+        let mut kept = Vec::new();
+        for m in result.modes() {
+            if m.flags.contains(&crate::modes::Flag::LowCoherence) {
+                notes.push(format!(
+                    "point '{}': the {:.1} Hz peak has low coherence and is not taken as a mode to fit",
+                    p.name, m.frequency_hz
+                ));
+                continue;
+            }
+            kept.push((
+                m.frequency_hz,
+                m.damping_ratio.unwrap_or(0.01).max(1e-3) + m.window_damping,
+            ));
+        }
+        modes.push(kept);
     }
     Ok((freqs.unwrap_or_default(), frfs, modes))
 }

@@ -196,6 +196,19 @@ pub fn write_wav(
         if peak > 0.0 { 0.5 / peak } else { 1.0 }
     };
     let (gf, ga) = (gain(force), gain(accel));
+    write_wav_scaled(path, fs, force, accel, (gf, ga))?;
+    Ok((gf, ga))
+}
+
+/// Write two channels as a 32-bit float WAV with the given scale factors (file value per
+/// channel unit), so several recordings keep their relative levels.
+pub fn write_wav_scaled(
+    path: &std::path::Path,
+    fs: f64,
+    force: &[f64],
+    accel: &[f64],
+    (gf, ga): (f64, f64),
+) -> crate::error::Result<()> {
     let spec = hound::WavSpec {
         channels: 2,
         sample_rate: fs.round() as u32,
@@ -210,6 +223,5 @@ pub fn write_wav(
         w.write_sample((f * gf) as f32).map_err(err)?;
         w.write_sample((a * ga) as f32).map_err(err)?;
     }
-    w.finalize().map_err(err)?;
-    Ok((gf, ga))
+    w.finalize().map_err(err)
 }
