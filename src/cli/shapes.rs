@@ -153,11 +153,9 @@ pub fn render(f: &ShapeFile) -> String {
         );
         for (p, v) in f.points.iter().zip(&m.shape.amplitudes) {
             let name: String = p.name.chars().take(30).collect();
-            out += &format!(
-                "  {name:<30} {:<5} {v:>+6.3} {}\n",
-                p.direction,
-                bar(*v, 12)
-            );
+            let line = format!("  {name:<30} {:<5} {v:>+6.3} {}", p.direction, bar(*v, 12));
+            out += line.trim_end();
+            out.push('\n');
         }
     }
     for n in &f.notes {

@@ -230,7 +230,9 @@ pub fn evaluate(
     }
 }
 
-/// Where to support, tap and place the sensor (printed by `tapmodes strip --guide`).
+/// Where to support, tap and place the sensor (printed by `tapmodes strip --guide`). The
+/// nodal lines at 0.224 L are those of the free-free first flexural mode (Blevins 1979,
+/// Table 8-1, 0.2242 L; from memory); the rest is common practice, no source.
 pub const GUIDE: &str = "\
 Strip test: how to hold, tap and measure
   Cut a strip much longer than wide (length at least 5 x width, width at least 5 x
