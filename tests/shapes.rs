@@ -212,3 +212,33 @@ fn tm9_points_shapes_and_a_swap_paired_by_shape() {
         "{out}"
     );
 }
+
+#[test]
+fn bad_plans_are_one_sentence_and_an_error() {
+    let dir = common::temp_dir("shapes-bad");
+    let cases = [
+        (
+            "one.txt",
+            "only point | z | p1.wav\n",
+            "a shape needs at least two",
+        ),
+        (
+            "fields.txt",
+            "a | z\nb | z | p2.wav\n",
+            "must be 'name | direction | recording.wav'",
+        ),
+        (
+            "missing.txt",
+            "a | z | nope1.wav\nb | z | nope2.wav\n",
+            "point 'a'",
+        ),
+    ];
+    for (name, text, want) in cases {
+        let plan = dir.join(name);
+        std::fs::write(&plan, text).unwrap();
+        let (code, out, err) = common::tapmodes(&["shapes", plan.to_str().unwrap()]);
+        assert_ne!(code, 0, "{name}: {out}");
+        assert!(err.contains(want), "{name}: {err}");
+        assert_eq!(err.trim().lines().count(), 1, "{err}");
+    }
+}
