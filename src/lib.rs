@@ -11,7 +11,9 @@ pub mod pipeline; // the one pipeline every front end drives
 pub mod plot; // pictures (SVG, PNG) and the HTML report of runs
 pub mod rng; // seeded random numbers for the simulator
 pub mod run; // run files (WAV, JSON, CSV), atomic writes, comparison
+pub mod shapes; // mode shapes over several points: shared-pole fit, MAC
 pub mod signal; // channels, roles, units and sample blocks
 pub mod source; // WAV replay, simulator (later: serial, audio)
 pub mod spectra; // windows, FFT, averaged spectra, H1/H2/coherence
+pub mod strip; // E and G of a free strip (ASTM E1876), strip files and their comparison
 pub mod tui; // the terminal app: model, update, view

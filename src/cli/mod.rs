@@ -10,8 +10,10 @@ pub(crate) mod html_report;
 pub mod plot;
 pub(crate) mod ports;
 pub(crate) mod report;
+pub mod shapes;
 pub(crate) mod simulate;
 pub(crate) mod source_args;
+pub(crate) mod strip;
 pub(crate) mod tui;
 
 use crate::error::Result;
@@ -55,6 +57,18 @@ pub(crate) enum Command {
     Ports,
     /// List sound-card inputs (needs the audio feature).
     Devices,
+    /// Young's and shear modulus of a free strip from its first flexural and torsional modes.
+    Strip(Box<strip::StripArgs>),
+    /// Compare strip files (E and G side by side, the first as baseline).
+    StripCompare(strip::StripCompareArgs),
+    /// Make a recording of taps on a simulated free-free strip of known E and G.
+    StripDemo(strip::StripDemoArgs),
+    /// Mode shapes from a plan of points (one recording per point), fitted with shared poles.
+    Shapes(Box<shapes::ShapesArgs>),
+    /// Pair the modes of two shape files by frequency order and shape (MAC).
+    ShapesCompare(shapes::ShapesCompareArgs),
+    /// Write a multi-point test of the simulated TM9 frame (plan and one recording per point).
+    ShapesDemo(shapes::ShapesDemoArgs),
 }
 
 pub fn run(cli: Cli) -> Result<()> {
@@ -69,6 +83,12 @@ pub fn run(cli: Cli) -> Result<()> {
         Some(Command::Report(a)) => html_report::run(&a),
         Some(Command::Ports) => ports::ports(),
         Some(Command::Devices) => ports::devices(),
+        Some(Command::Strip(a)) => strip::run(&a),
+        Some(Command::StripCompare(a)) => strip::compare_run(&a),
+        Some(Command::StripDemo(a)) => strip::demo_run(&a),
+        Some(Command::Shapes(a)) => shapes::run(&a),
+        Some(Command::ShapesCompare(a)) => shapes::compare_run(&a),
+        Some(Command::ShapesDemo(a)) => shapes::demo_run(&a),
         None => {
             // No command: the app on the simulated bench, with every default.
             #[derive(Parser)]

@@ -22,6 +22,8 @@ mod hostile_serial;
 mod independent_recordings;
 mod plot_pictures;
 mod serial_pty;
+mod shapes;
+mod strip;
 mod tui_tmux;
 mod tui_update;
 mod tui_view;

@@ -204,6 +204,7 @@ pub fn report(
             frequency_hz: p.frequency_hz,
             sign: None,
             magnitude: None,
+            shape: None,
         })
         .collect();
     let rules = MatchRules {
@@ -220,6 +221,7 @@ pub fn report(
                     frequency_hz: m.frequency_hz,
                     sign: None,
                     magnitude: None,
+                    shape: None,
                 })
                 .collect();
             let pairs = pair_modes(&ca, &cb, &rules);

@@ -34,6 +34,9 @@ pub fn candidates(run: &RunFile) -> Vec<Candidate> {
                 frequency_hz: m.frequency_hz,
                 sign,
                 magnitude,
+                // Single-point runs carry no shapes; `tapmodes shapes-compare` pairs
+                // multi-point shape files with the same matcher and MAC evidence.
+                shape: None,
             }
         })
         .collect()
