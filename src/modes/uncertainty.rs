@@ -8,7 +8,7 @@
 //! (from the averaged FRF) normally lies close to it. It describes the scatter between taps
 //! (noise, tap-to-tap variation); a bias common to every hit is not in it.
 
-use super::fit::{FitConfig, Seed, complex_curve, fit_band, fitted_mode};
+use super::fit::{FitBudget, FitConfig, Seed, complex_curve, fit_band_within, fitted_mode};
 use super::{Mode, halfpower};
 use crate::spectra::{Basis, Curve, HitSpectra, SpectralAverager, remove_window_damping};
 use serde::{Deserialize, Serialize};
@@ -139,6 +139,8 @@ fn estimate_hit(
 ) -> Vec<HitEstimate> {
     let mut out = vec![None; modes.len()];
     let h = complex_curve(curve);
+    // Each hit's refits get the budget of one mode search.
+    let budget = FitBudget::standard();
     // Fitted modes: refit each band of the averaged fit, seeded by the averaged poles.
     if let Some(h) = &h {
         let mut done = vec![false; modes.len()];
@@ -172,7 +174,9 @@ fn estimate_hit(
                 .collect();
             pairs.sort_by(|a, b| a.1.frequency_hz.total_cmp(&b.1.frequency_hz));
             let seeds: Vec<Seed> = pairs.iter().map(|p| p.1).collect();
-            if let Some(fit) = fit_band(freqs, h, f0.band_hz, &seeds, cfg.max_iterations) {
+            if let Some(fit) =
+                fit_band_within(freqs, h, f0.band_hz, &seeds, cfg.max_iterations, &budget)
+            {
                 // Poles come back sorted by frequency, like the seeds.
                 for (k, &(j, _)) in pairs.iter().enumerate() {
                     let fm = fitted_mode(&fit, k, tau_s);
