@@ -3,7 +3,7 @@
 use super::args::{AnalysisArgs, ChannelArgs};
 use super::report;
 use crate::error::Result;
-use crate::pipeline::{Analysis, analyse_source};
+use crate::pipeline::Analysis;
 use crate::run::{FileKind, RunFile, Variant, safe_path, validate, write_run_files};
 use crate::signal::RoleChoice;
 use crate::source::Source;
@@ -34,6 +34,9 @@ pub struct AnalyzeArgs {
     /// Also print every hit with its verdict.
     #[arg(long)]
     pub hits: bool,
+    /// No progress line while a long file is read (it is shown only on a terminal).
+    #[arg(long, short)]
+    pub quiet: bool,
     /// With a base channel: the mount's transmissibility in dB at HZ or over LO:HI (the
     /// motors' excitation band, say), measured and from the fitted mount model.
     #[arg(long, value_name = "HZ|LO:HI", value_parser = parse_freq_or_band)]
@@ -90,7 +93,7 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
     let cli_note = validate::clean_text(&a.note, true);
     let mut drive = a.drive.drive()?;
     let (mut analysis, wav, mut variant) = if is_json {
-        let (analysis, wav, saved, saved_drive) = reanalyse(&a.input)?;
+        let (analysis, wav, saved, saved_drive) = reanalyse(&a.input, a.quiet)?;
         check_outputs(&out, &[&a.input, &wav])?;
         drive = drive.or(saved_drive);
         (analysis, wav, saved)
@@ -103,7 +106,8 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
         check_outputs(&out, &[&a.input])?;
         // Re-analysed over its own earlier run: keep the operator's verdicts, label and note.
         let earlier = earlier_run(&out, &a.input)?;
-        let mut analysis = analyse_source(&mut src, roles, cfg, earlier.is_some())?;
+        let analysis = Analysis::new(&src.info().clone(), roles, cfg, earlier.is_some())?;
+        let mut analysis = drain_shown(&mut src, analysis, a.quiet)?;
         let mut variant = Variant {
             label: stem(&a.input),
             note: String::new(),
@@ -206,7 +210,15 @@ fn parse_freq_or_band(s: &str) -> std::result::Result<(f64, f64), String> {
 /// file is checked like command-line settings, its recording must lie in its folder and
 /// match it (channels, rate, length), and the recording's own calibration and full scale
 /// are taken from the run, so re-analysis reproduces the capture.
-fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
+/// Drain a WAV through an analysis with a progress line on a terminal.
+fn drain_shown(src: &mut WavSource, analysis: Analysis, quiet: bool) -> Result<Analysis> {
+    let mut meter = super::progress::Meter::new(src.frames(), src.frame_bytes(), quiet);
+    let done = crate::pipeline::drain_with_progress(src, analysis, &mut |p| meter.update(p));
+    meter.finish();
+    done
+}
+
+fn reanalyse(json: &Path, quiet: bool) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
     let saved = RunFile::load(json)?;
     let shown = json.display();
     let wav = saved.wav_path(json).ok_or_else(|| {
@@ -259,7 +271,7 @@ fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crate::d
     let cfg = saved.analysis_config();
     let mut analysis = Analysis::new(&src.info().clone(), s.roles, cfg, true)?;
     analysis.set_disarmed(saved.disarmed.clone());
-    let mut analysis = crate::pipeline::drain_into(&mut src, analysis)?;
+    let mut analysis = drain_shown(&mut src, analysis, quiet)?;
     analysis.apply_verdicts(&saved.hits);
     let drive = saved.drive.map(|d| d.description);
     if let Some(d) = &drive {

@@ -8,6 +8,7 @@ pub mod capture;
 pub mod compare;
 pub mod drive_args;
 pub mod ports;
+pub mod progress;
 pub mod report;
 pub mod simulate;
 pub mod source_args;

@@ -113,6 +113,11 @@ impl WavSource {
         self.frames_total
     }
 
+    /// Bytes of one frame in the file.
+    pub fn frame_bytes(&self) -> u64 {
+        (self.kind.bytes() * self.info.channels.len()) as u64
+    }
+
     /// Read no further than `frames` (a run that ended before its recording did).
     pub fn limit_frames(&mut self, frames: u64) {
         self.frames_total = self.frames_total.min(frames);
