@@ -48,8 +48,12 @@ pub const FIT_WORK: u64 = 1_200_000_000;
 
 /// Work allowed to one band fit: about 0.4 s, room for the largest fit of the demo and
 /// independent recordings (a band of 7 close modes over 660 lines, 0.37 G units). The
-/// trials of one more mode in a band may together use only what the band's own fit used.
+/// trials of one more mode in a band may together use what the band's own fit used or
+/// `FIT_WORK_TRIALS`, whichever is more.
 pub const FIT_WORK_PER_BAND: u64 = 400_000_000;
+
+/// Work the trials of one more mode in a band may use together at least (about 50 ms).
+pub const FIT_WORK_TRIALS: u64 = 50_000_000;
 
 /// Wall-clock limit of the band fits of one mode search: a backstop behind the work limits
 /// (which alone keep results reproducible) for a machine many times slower than expected.
@@ -758,8 +762,9 @@ pub fn refine_modes(
         else {
             continue;
         };
-        // The trials of one more mode may together use what the band's fit used.
-        let mut trials_left = budget.band_used();
+        // The trials of one more mode may together use what the band's fit used, or
+        // `FIT_WORK_TRIALS`, whichever is more.
+        let mut trials_left = budget.band_used().max(FIT_WORK_TRIALS);
         let mut best: (BandFit, Option<usize>) = (fit, None);
         if best.0.error > SPLIT_MIN_ERROR {
             for split in 0..group.len() {
