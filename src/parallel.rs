@@ -45,6 +45,38 @@ where
     })
 }
 
+/// `f` over `items` in place, in contiguous shares, one per element of `states` (each
+/// share on its own thread with its own state: buffers kept between calls).
+pub fn for_each_mut<T: Send, S: Send>(
+    states: &mut [S],
+    items: &mut [T],
+    f: impl Fn(&mut S, &mut T) + Sync,
+) {
+    let n = states.len().min(items.len());
+    if n == 0 {
+        return;
+    }
+    if n == 1 {
+        items.iter_mut().for_each(|x| f(&mut states[0], x));
+        return;
+    }
+    let share = items.len().div_ceil(n);
+    std::thread::scope(|s| {
+        let workers: Vec<_> = (items.chunks_mut(share))
+            .zip(states.iter_mut())
+            .map(|(part, state)| {
+                let f = &f;
+                s.spawn(move || part.iter_mut().for_each(|x| f(state, x)))
+            })
+            .collect();
+        for w in workers {
+            if let Err(e) = w.join() {
+                std::panic::resume_unwind(e);
+            }
+        }
+    });
+}
+
 /// `f` over `items` on the machine's cores, results in order.
 pub fn map<T: Sync, R: Send>(items: &[T], f: impl Fn(&T) -> R + Sync) -> Vec<R> {
     map_with(items, || (), |_, x| f(x))
@@ -55,11 +87,23 @@ mod tests {
     #[test]
     fn keeps_order_and_state_per_thread() {
         let items: Vec<u64> = (0..1000).collect();
-        let got = super::map_with(&items, || 0u64, |seen, x| {
-            *seen += 1;
-            x * x
-        });
+        let got = super::map_with(
+            &items,
+            || 0u64,
+            |seen, x| {
+                *seen += 1;
+                x * x
+            },
+        );
         assert_eq!(got, items.iter().map(|x| x * x).collect::<Vec<_>>());
         assert!(super::map(&[] as &[u8], |x| *x).is_empty());
+        let mut states = vec![0usize; 3];
+        let mut v: Vec<u64> = (0..10).collect();
+        super::for_each_mut(&mut states, &mut v, |n, x| {
+            *n += 1;
+            *x *= 2;
+        });
+        assert_eq!(v, (0..10).map(|x| 2 * x).collect::<Vec<_>>());
+        assert_eq!(states.iter().sum::<usize>(), 10);
     }
 }

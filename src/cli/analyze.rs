@@ -218,7 +218,10 @@ fn drain_shown(src: &mut WavSource, analysis: Analysis, quiet: bool) -> Result<A
     done
 }
 
-fn reanalyse(json: &Path, quiet: bool) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
+fn reanalyse(
+    json: &Path,
+    quiet: bool,
+) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
     let saved = RunFile::load(json)?;
     let shown = json.display();
     let wav = saved.wav_path(json).ok_or_else(|| {

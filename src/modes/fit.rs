@@ -56,8 +56,8 @@ pub const FIT_WORK_PER_BAND: u64 = 400_000_000;
 pub const FIT_WORK_TRIALS: u64 = 50_000_000;
 
 /// Wall-clock limit of the band fits of one mode search: a backstop behind the work limits
-/// (which alone keep results reproducible) for a machine many times slower than expected.
-pub const FIT_TIME: std::time::Duration = std::time::Duration::from_millis(1000);
+/// (which alone keep results reproducible) for a machine many times slower than this one.
+pub const FIT_TIME: std::time::Duration = std::time::Duration::from_secs(3);
 
 /// A hard budget on band fits: least-squares work (per band and in all) and wall-clock
 /// time; iterations are limited by `FitConfig::max_iterations`. A fit that runs out is
@@ -95,9 +95,7 @@ impl FitBudget {
             return false;
         }
         let (left, band) = (self.work_left.get(), self.band_left.get());
-        let late = self
-            .deadline
-            .is_some_and(|d| std::time::Instant::now() > d);
+        let late = self.deadline.is_some_and(|d| std::time::Instant::now() > d);
         if work > left || work > band || late {
             self.failed.set(true);
             return false;
@@ -758,8 +756,7 @@ pub fn refine_modes(
     for (band, members) in group_seeds(seeds, resolution_hz, cfg) {
         // group_seeds lists members by frequency.
         let group: Vec<Seed> = members.iter().map(|&i| seeds[i]).collect();
-        let Some(fit) = fit_band_within(freqs, &h, band, &group, cfg.max_iterations, budget)
-        else {
+        let Some(fit) = fit_band_within(freqs, &h, band, &group, cfg.max_iterations, budget) else {
             continue;
         };
         // The trials of one more mode may together use what the band's fit used, or

@@ -114,6 +114,9 @@ pub struct Analysis {
     /// returns, so the averages seen from outside are always complete.
     pending: Vec<(usize, Vec<Vec<f64>>)>,
     batch: usize,
+    /// Buffers reused between batches: transforms not kept, and per-thread FFT buffers.
+    spare: Vec<HitSpectra>,
+    workers: Vec<crate::spectra::Transformer>,
 }
 
 impl Analysis {
@@ -197,6 +200,8 @@ impl Analysis {
             hit_spectra: Vec::new(),
             pending: Vec::new(),
             batch: 1,
+            spare: Vec::new(),
+            workers: Vec::new(),
         })
     }
 
@@ -338,10 +343,12 @@ impl Analysis {
         if self.pending.is_empty() {
             return;
         }
-        let pending = std::mem::take(&mut self.pending);
-        let records: Vec<&[Vec<f64>]> = pending.iter().map(|p| p.1.as_slice()).collect();
-        let spectra = self.averager.transform_all(&records);
-        for ((index, record), hs) in pending.into_iter().zip(spectra) {
+        let (index, records): (Vec<usize>, Vec<Vec<Vec<f64>>>) =
+            std::mem::take(&mut self.pending).into_iter().unzip();
+        let done = self
+            .averager
+            .transform_batch(records, &mut self.spare, &mut self.workers);
+        for (index, (record, hs)) in index.into_iter().zip(done) {
             self.add_hit_spectra(index, hs);
             if let Some(last) = self.last.as_mut()
                 && last.number == self.hits[index].number
@@ -358,6 +365,8 @@ impl Analysis {
         let stored = self.hit_spectra.iter().filter(|h| h.is_some()).count();
         if self.records[index].is_some() && stored < SPREAD_RECORDS {
             self.hit_spectra[index] = Some(hs);
+        } else if self.batch > 1 {
+            self.spare.push(hs);
         }
     }
 
@@ -512,10 +521,7 @@ pub fn analyse_source(
 }
 
 /// Drain a source through an analysis already set up (e.g. with disarmed ranges).
-pub fn drain_into(
-    source: &mut dyn crate::source::Source,
-    analysis: Analysis,
-) -> Result<Analysis> {
+pub fn drain_into(source: &mut dyn crate::source::Source, analysis: Analysis) -> Result<Analysis> {
     drain_with_progress(source, analysis, &mut |_| {})
 }
 
@@ -546,5 +552,7 @@ pub fn drain_with_progress(
     }
     analysis.finish();
     analysis.batch = 1;
+    analysis.spare = Vec::new();
+    analysis.workers = Vec::new();
     Ok(analysis)
 }

@@ -157,8 +157,7 @@ impl Analysis {
         let records = self.accepted_records();
         if records.len() >= 2 {
             let hit_spectra = self.accepted_hit_spectra();
-            let curves =
-                crate::modes::uncertainty::hit_curves(&self.averager, &hit_spectra, basis);
+            let curves = crate::modes::uncertainty::hit_curves(&self.averager, &hit_spectra, basis);
             crate::modes::uncertainty::attach(
                 modes,
                 &spectra.freqs,

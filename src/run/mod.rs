@@ -393,11 +393,7 @@ pub fn write_curve_csv(path: &Path, freqs: &[f64], curve: &Curve, band: (f64, f6
             continue;
         }
         let m = curve.magnitude[k];
-        let _ = write!(
-            rows,
-            "{f:.4},{m:.6e},{:.3}",
-            20.0 * m.max(1e-300).log10()
-        );
+        let _ = write!(rows, "{f:.4},{m:.6e},{:.3}", 20.0 * m.max(1e-300).log10());
         opt(&mut rows, curve.phase_deg.as_ref(), k);
         opt(&mut rows, curve.coherence.as_ref(), k);
         opt(&mut rows, curve.spread_db.as_ref(), k);

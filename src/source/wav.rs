@@ -294,11 +294,26 @@ mod tests {
     fn bulk_decoding_matches_per_sample() {
         let kinds = [
             SampleKind::U8,
-            SampleKind::Int { bytes: 2, valid: 16 },
-            SampleKind::Int { bytes: 2, valid: 12 },
-            SampleKind::Int { bytes: 3, valid: 24 },
-            SampleKind::Int { bytes: 4, valid: 24 },
-            SampleKind::Int { bytes: 4, valid: 32 },
+            SampleKind::Int {
+                bytes: 2,
+                valid: 16,
+            },
+            SampleKind::Int {
+                bytes: 2,
+                valid: 12,
+            },
+            SampleKind::Int {
+                bytes: 3,
+                valid: 24,
+            },
+            SampleKind::Int {
+                bytes: 4,
+                valid: 24,
+            },
+            SampleKind::Int {
+                bytes: 4,
+                valid: 32,
+            },
             SampleKind::F32,
             SampleKind::F64,
         ];
@@ -322,7 +337,11 @@ mod tests {
                 for (i, b) in bytes.chunks_exact(w).enumerate() {
                     let c = i % n_ch;
                     let want = kind.decode(b) * scales[c];
-                    assert_eq!(got[c][i / n_ch].to_bits(), want.to_bits(), "{kind:?} {n_ch}");
+                    assert_eq!(
+                        got[c][i / n_ch].to_bits(),
+                        want.to_bits(),
+                        "{kind:?} {n_ch}"
+                    );
                 }
             }
         }

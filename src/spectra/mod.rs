@@ -4,7 +4,8 @@ pub mod averager;
 pub mod window;
 
 use crate::signal::Roles;
-use averager::{CrossAccumulator, Scaling, Spread, Transformer, line_factors};
+pub use averager::Transformer;
+use averager::{CrossAccumulator, Scaling, Spread, line_factors};
 use realfft::num_complex::Complex64;
 use serde::{Deserialize, Serialize};
 pub use window::{WindowConfig, Windows, remove_window_damping};
@@ -255,30 +256,57 @@ impl SpectralAverager {
     }
 
     fn transform_with(&self, fft: &mut Transformer, record: &[Vec<f64>]) -> HitSpectra {
-        let lines = fft.lines();
-        let zero = || vec![Complex64::new(0.0, 0.0); lines];
-        let mut response = zero();
+        let mut hs = self.blank();
+        self.transform_into(fft, record, &mut hs);
+        hs
+    }
+
+    /// Buffers for one hit's transforms.
+    fn blank(&self) -> HitSpectra {
+        let zero = || vec![Complex64::new(0.0, 0.0); self.fft.lines()];
+        HitSpectra {
+            response: zero(),
+            force: self.force_response.as_ref().map(|_| zero()),
+            base: self.base_response.as_ref().map(|_| zero()),
+        }
+    }
+
+    fn transform_into(&self, fft: &mut Transformer, record: &[Vec<f64>], hs: &mut HitSpectra) {
+        let windows = &self.windows;
         fft.transform(
             &record[self.roles.response],
-            &self.windows.exponential,
-            &mut response,
+            &windows.exponential,
+            &mut hs.response,
         );
         // Force: force window times the same exponential, so the pole shift is exact.
-        let force = (self.roles.force.zip(self.force_response.as_ref())).map(|(f, _)| {
-            let mut fx = zero();
-            fft.transform(&record[f], &self.force_exp, &mut fx);
-            fx
-        });
-        let base = (self.roles.base.zip(self.base_response.as_ref())).map(|(b, _)| {
-            let mut bx = zero();
-            fft.transform(&record[b], &self.windows.exponential, &mut bx);
-            bx
-        });
-        HitSpectra {
-            response,
-            force,
-            base,
+        if let (Some(f), Some(fx)) = (self.roles.force, hs.force.as_mut()) {
+            fft.transform(&record[f], &self.force_exp, fx);
         }
+        if let (Some(b), Some(bx)) = (self.roles.base, hs.base.as_mut()) {
+            fft.transform(&record[b], &windows.exponential, bx);
+        }
+    }
+
+    /// Transform many records on all cores into `out` (one per record), reusing the
+    /// buffers of `spare` and the per-thread FFT buffers of `workers` between calls.
+    pub fn transform_batch(
+        &self,
+        records: Vec<Vec<Vec<f64>>>,
+        spare: &mut Vec<HitSpectra>,
+        workers: &mut Vec<Transformer>,
+    ) -> Vec<(Vec<Vec<f64>>, HitSpectra)> {
+        let threads = crate::parallel::threads().min(records.len()).max(1);
+        while workers.len() < threads {
+            workers.push(self.fft.fresh());
+        }
+        let mut jobs: Vec<(Vec<Vec<f64>>, HitSpectra)> = records
+            .into_iter()
+            .map(|r| (r, spare.pop().unwrap_or_else(|| self.blank())))
+            .collect();
+        crate::parallel::for_each_mut(&mut workers[..threads], &mut jobs, |fft, (r, hs)| {
+            self.transform_into(fft, r, hs)
+        });
+        jobs
     }
 
     /// Add one record's transforms (from `transform` of this averager or one like it).
