@@ -898,6 +898,32 @@ mod tests {
     }
 
     #[test]
+    fn budget_refuses_a_fit_that_needs_more() {
+        let modes = [(100.0, 0.01, 1.0), (140.0, 0.02, 0.5)];
+        let freqs: Vec<f64> = (0..400).map(|k| k as f64 * 0.5).collect();
+        let h: Vec<Complex64> = freqs.iter().map(|&f| receptance(&modes, f)).collect();
+        let seeds = [
+            Seed {
+                frequency_hz: 101.0,
+                damping_ratio: 0.012,
+            },
+            Seed {
+                frequency_hz: 139.0,
+                damping_ratio: 0.018,
+            },
+        ];
+        let ample = FitBudget::new(FIT_WORK, None);
+        let fit = fit_band_within(&freqs, &h, (80.0, 160.0), &seeds, 60, &ample);
+        assert!(fit.is_some() && !ample.exhausted());
+        // One solve of this band is 2 x 161 lines x 8^2 columns, about 20 000 units: a
+        // budget of 10 000 does not cover the first.
+        let tight = FitBudget::new(10_000, None);
+        let fit = fit_band_within(&freqs, &h, (80.0, 160.0), &seeds, 60, &tight);
+        assert!(fit.is_none());
+        assert_eq!(tight.refused(), vec![((80.0, 160.0), 2)]);
+    }
+
+    #[test]
     fn short_band_is_refused() {
         let freqs: Vec<f64> = (0..5).map(|k| 100.0 + k as f64).collect();
         let h = vec![Complex64::new(1.0, 0.0); 5];
