@@ -7,6 +7,7 @@ pub mod drive; // the motors' excitation bands and each mode's verdict against t
 pub mod error; // errors as values: one sentence with context
 pub mod hits; // trigger, pre-trigger ring, per-hit verdicts
 pub mod modes; // peak picking, half-power damping, flags
+pub mod parallel; // order-preserving parallel map on the machine's cores
 pub mod pipeline; // the one pipeline every front end drives
 pub mod plot; // pictures (SVG, PNG) and the HTML report of runs
 pub mod rng; // seeded random numbers for the simulator

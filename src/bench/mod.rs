@@ -22,7 +22,8 @@ use tapmodes::source::wav::WavSource;
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum BenchKind {
-    /// `analyze` time and peak memory on generated 1- and 10-minute 48 kHz stereo WAVs.
+    /// `analyze` time against `cat` and the FFT-work floor, phases and peak memory on
+    /// generated 1-, 10- and 60-minute 48 kHz stereo WAVs (`--quick`: 15 s and 1 min).
     Speed,
     /// Serial decoder throughput, binary and text forms.
     Decoder,
@@ -61,106 +62,276 @@ fn peak_rss_kib(reset: bool) -> Option<u64> {
     line.split_whitespace().nth(1)?.parse().ok()
 }
 
-/// Stream a simulated 48 kHz stereo recording straight to a WAV (flat memory).
-fn make_wav(path: &std::path::Path, seconds: f64) -> Result<()> {
+/// Stream a simulated 48 kHz stereo recording straight to a WAV (flat memory): 16-bit
+/// converter codes, or 32-bit float channel values.
+fn make_wav(path: &std::path::Path, seconds: f64, float: bool) -> Result<()> {
     let mut plan = preset("tm9-arm-solid", 3).ok_or_else(|| Error::new("preset missing"))?;
     plan.sample_rate = 48_000.0;
     plan.hammer.tip = tapmodes::source::simulator::Tip::Hard;
     let lsb: Vec<f64> = plan.sensors.iter().map(|s| s.lsb()).collect();
+    // Float samples as a fraction of each sensor's full scale, as a sound card gives them.
+    let full: Vec<f64> = plan.sensors.iter().map(|s| s.full_scale).collect();
     let spec = hound::WavSpec {
         channels: 2,
         sample_rate: 48_000,
-        bits_per_sample: 16,
-        sample_format: hound::SampleFormat::Int,
+        bits_per_sample: if float { 32 } else { 16 },
+        sample_format: if float {
+            hound::SampleFormat::Float
+        } else {
+            hound::SampleFormat::Int
+        },
     };
-    let mut w = hound::WavWriter::create(path, spec).map_err(|e| Error::new(e.to_string()))?;
+    let enc = |e: hound::Error| Error::new(e.to_string());
+    let mut w = hound::WavWriter::create(path, spec).map_err(enc)?;
     let mut sim = Simulator::new(plan, Some(seconds), true).with_block_len(48_000);
     while let Some(b) = sim.next_block()? {
         for k in 0..b.len() {
-            for (ch, step) in b.channels.iter().zip(&lsb) {
-                w.write_sample((ch[k] / step).round() as i16)
-                    .map_err(|e| Error::new(e.to_string()))?;
+            for ((ch, step), full) in b.channels.iter().zip(&lsb).zip(&full) {
+                if float {
+                    w.write_sample((ch[k] / full) as f32).map_err(enc)?;
+                } else {
+                    w.write_sample((ch[k] / step).round() as i16).map_err(enc)?;
+                }
             }
         }
     }
-    w.finalize().map_err(|e| Error::new(e.to_string()))
+    w.finalize().map_err(enc)
+}
+
+/// Median of a few timings (seconds).
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v.get(v.len() / 2).copied().unwrap_or(f64::NAN)
+}
+
+/// Wall time of `cat FILE > /dev/null`; without a `cat`, of reading the file in 1 MiB
+/// pieces here (said in the output).
+fn cat_time(path: &std::path::Path) -> Result<(f64, &'static str)> {
+    let t0 = Instant::now();
+    let ran = std::process::Command::new("cat")
+        .arg(path)
+        .stdout(std::process::Stdio::null())
+        .status();
+    if ran.is_ok_and(|s| s.success()) {
+        return Ok((t0.elapsed().as_secs_f64(), "cat"));
+    }
+    let t0 = Instant::now();
+    let mut f = std::fs::File::open(path)?;
+    let mut buf = vec![0u8; 1 << 20];
+    while std::io::Read::read(&mut f, &mut buf)? > 0 {}
+    Ok((t0.elapsed().as_secs_f64(), "read loop"))
+}
+
+/// Wall time of the whole `tapmodes analyze FILE` command (this executable, a child
+/// process: reading, analysis, printing, run files).
+fn command_time(path: &std::path::Path, out: &std::path::Path) -> Result<f64> {
+    let exe = std::env::current_exe()?;
+    let _ = std::fs::remove_file(out);
+    let _ = std::fs::remove_file(out.with_extension("csv"));
+    let t0 = Instant::now();
+    let status = std::process::Command::new(exe)
+        .arg("analyze")
+        .arg(path)
+        .arg("--out")
+        .arg(out)
+        .arg("--quiet")
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::piped())
+        .output()?;
+    let t = t0.elapsed().as_secs_f64();
+    if !status.status.success() {
+        tapmodes::fail!(
+            "the benchmark's analyze run failed on '{}': {}",
+            path.display(),
+            String::from_utf8_lossy(&status.stderr).trim()
+        );
+    }
+    Ok(t)
+}
+
+/// The FFT work of an analysis alone: `count` real FFTs of `n_fft` points (windowed
+/// records of `record_len` samples, zero-padded as the analysis pads them), in a tight
+/// loop on all cores.
+fn fft_floor(count: usize, record_len: usize, n_fft: usize) -> f64 {
+    use realfft::num_complex::Complex64;
+    use tapmodes::spectra::averager::Transformer;
+    let mut rng = tapmodes::rng::Rng::new(5);
+    let record: Vec<f64> = (0..record_len)
+        .map(|_| (rng.next_u64() >> 11) as f64 / (1u64 << 53) as f64 - 0.5)
+        .collect();
+    let window = vec![1.0; record_len];
+    let jobs: Vec<usize> = (0..count).collect();
+    let plan = Transformer::new(n_fft, 48_000.0);
+    let t0 = Instant::now();
+    let sums = tapmodes::parallel::map_with(
+        &jobs,
+        || (plan.fresh(), vec![Complex64::new(0.0, 0.0); n_fft / 2 + 1]),
+        |(fft, out), _| {
+            fft.transform(&record, &window, out);
+            out[1].re
+        },
+    );
+    let t = t0.elapsed().as_secs_f64();
+    // Use the results so the loop cannot be optimised away.
+    if sums.iter().any(|v| v.is_nan()) {
+        return f64::NAN;
+    }
+    t
+}
+
+/// Where the time of one file goes (seconds, in this process): reading alone, reading and
+/// hit detection, the whole drain (with the FFTs and averaging), and the mode search with
+/// the per-hit uncertainty.
+struct Phases {
+    read: f64,
+    detect: f64,
+    drain: f64,
+    modes: f64,
+    hits: usize,
+    accepted: usize,
+    ffts: usize,
+    record_len: usize,
+    n_fft: usize,
+    rss_kib: u64,
+}
+
+fn phases(path: &std::path::Path) -> Result<Phases> {
+    let t0 = Instant::now();
+    let mut src = WavSource::open(path)?;
+    while src.next_block()?.is_some() {}
+    let read = t0.elapsed().as_secs_f64();
+    let t0 = Instant::now();
+    let mut src = WavSource::open(path)?;
+    let roles = RoleChoice::default().resolve(src.info())?;
+    let mut det = tapmodes::hits::HitDetector::new(
+        src.info(),
+        roles,
+        tapmodes::hits::TriggerConfig {
+            channel: roles.force.unwrap_or(roles.response),
+            level: tapmodes::hits::TriggerLevel::NoiseMultiple(10.0),
+            pretrigger_s: 0.01,
+            record_s: 1.0,
+            holdoff_s: 0.2,
+        },
+        tapmodes::hits::CheckConfig::default(),
+    );
+    let mut hits = Vec::new();
+    while let Some(b) = src.next_block()? {
+        det.push(&b, &mut hits);
+        let _ = det.take_idle();
+        hits.clear();
+    }
+    let detect = t0.elapsed().as_secs_f64();
+    let before = peak_rss_kib(true).unwrap_or(0);
+    let t0 = Instant::now();
+    let mut src = WavSource::open(path)?;
+    let roles = RoleChoice::default().resolve(src.info())?;
+    let a = analyse_source(&mut src, roles, AnalysisConfig::default(), false)?;
+    let drain = t0.elapsed().as_secs_f64();
+    let t0 = Instant::now();
+    let s = a.spectra();
+    let _ = a.modes(&s);
+    let modes = t0.elapsed().as_secs_f64();
+    let rss_kib = peak_rss_kib(false).unwrap_or(0).max(before);
+    let n_fft = 2 * (s.freqs.len() - 1);
+    let per_hit = 1 + usize::from(roles.force.is_some()) + usize::from(roles.base.is_some());
+    Ok(Phases {
+        read,
+        detect,
+        drain,
+        modes,
+        hits: a.hits().len(),
+        accepted: a.accepted(),
+        ffts: a.accepted() * per_hit + s.background_records,
+        record_len: a.detector().record_len(),
+        n_fft,
+        rss_kib,
+    })
 }
 
 fn speed(quick: bool) -> Result<String> {
     let dir = std::env::temp_dir().join(format!("tapmodes-bench-{}", std::process::id()));
     std::fs::create_dir_all(&dir)?;
-    let mut out = String::from(
-        "| file | hits | accepted | analyze time | peak RSS during analyze |\n|---|---|---|---|---|\n",
+    let done = speed_in(&dir, quick);
+    let _ = std::fs::remove_dir_all(&dir);
+    done
+}
+
+fn speed_in(dir: &std::path::Path, quick: bool) -> Result<String> {
+    // (minutes, float): 48 kHz stereo, about 40 taps a minute.
+    let files: &[(f64, bool)] = if quick {
+        &[(0.25, true), (1.0, true)]
+    } else {
+        &[(1.0, true), (10.0, true), (10.0, false), (60.0, true)]
+    };
+    let repeats = if quick { 3 } else { 5 };
+    let mut out = format!(
+        "Medians of {repeats} runs; `analyze` is the whole command (a child process), `cat` is `cat FILE > /dev/null`, the FFT floor is the same number and length of FFTs in a tight loop on {} core(s).\n\n",
+        tapmodes::parallel::threads()
     );
-    let mut breakdown = String::new();
-    let lengths: &[f64] = if quick { &[10.0, 60.0] } else { &[60.0, 600.0] };
-    for &secs in lengths {
-        let path = dir.join(format!("bench-{secs}.wav"));
-        make_wav(&path, secs)?;
-        let mut best = f64::INFINITY;
-        let mut rss = 0;
-        let mut counts = (0, 0);
-        let mut mode_count = 0;
-        for _ in 0..3 {
-            let before = peak_rss_kib(true).unwrap_or(0);
-            let t0 = Instant::now();
-            let mut src = WavSource::open(&path)?;
-            let roles = RoleChoice::default().resolve(src.info())?;
-            let a = analyse_source(&mut src, roles, AnalysisConfig::default(), false)?;
-            let s = a.spectra();
-            let modes = a.modes(&s);
-            best = best.min(t0.elapsed().as_secs_f64());
-            rss = rss.max(peak_rss_kib(false).unwrap_or(0).max(before));
-            counts = (a.hits().len(), a.accepted());
-            mode_count = modes.len();
-        }
-        // Where the time goes: reading alone, reading plus hit detection.
-        let t0 = Instant::now();
-        let mut src = WavSource::open(&path)?;
-        while src.next_block()?.is_some() {}
-        let read_s = t0.elapsed().as_secs_f64();
-        let t0 = Instant::now();
-        let mut src = WavSource::open(&path)?;
-        let roles = RoleChoice::default().resolve(src.info())?;
-        let mut det = tapmodes::hits::HitDetector::new(
-            src.info(),
-            roles,
-            tapmodes::hits::TriggerConfig {
-                channel: 0,
-                level: tapmodes::hits::TriggerLevel::NoiseMultiple(10.0),
-                pretrigger_s: 0.01,
-                record_s: 1.0,
-                holdoff_s: 0.2,
-            },
-            tapmodes::hits::CheckConfig::default(),
+    out += "| file | taps (accepted) | cat | analyze | analyze / cat | FFT floor | analyze / floor | peak RSS |\n|---|---|---|---|---|---|---|---|\n";
+    let mut breakdown = String::from(
+        "\nPhases (in process, medians): reading; hit detection (reading and detection less reading); spectra (FFTs and averaging: the whole drain less reading and detection); modes (mode search, fits and per-hit uncertainty).\n\n| file | reading | hit detection | spectra | modes | FFTs (length) |\n|---|---|---|---|---|---|\n",
+    );
+    for &(minutes, float) in files {
+        let path = dir.join(format!("bench-{minutes}-{float}.wav"));
+        make_wav(&path, minutes * 60.0, float)?;
+        let size_mb = std::fs::metadata(&path).map_or(0.0, |m| m.len() as f64 / 1e6);
+        let name = format!(
+            "{} min, {} ({:.0} MB)",
+            minutes,
+            if float { "32-bit float" } else { "16-bit" },
+            size_mb
         );
-        let mut hits = Vec::new();
-        while let Some(b) = src.next_block()? {
-            det.push(&b, &mut hits);
-            hits.clear();
+        let json = dir.join("bench-out.json");
+        let mut cat = Vec::new();
+        let mut cmd = Vec::new();
+        let mut ph = Vec::new();
+        let mut cat_how = "cat";
+        // Interleaved, so a change in machine load touches every measure alike.
+        for _ in 0..repeats {
+            let (t, how) = cat_time(&path)?;
+            cat.push(t);
+            cat_how = how;
+            cmd.push(command_time(&path, &json)?);
+            ph.push(phases(&path)?);
         }
-        let detect_s = t0.elapsed().as_secs_f64();
-        breakdown += &format!(
-            "- {:.0} min: reading {:.3} s, reading + hit detection {:.3} s, whole analysis {:.3} s ({} modes)\n",
-            secs / 60.0,
-            read_s,
-            detect_s,
-            best,
-            mode_count
+        let last = ph.last().ok_or_else(|| Error::new("no benchmark run"))?;
+        let floor = median(
+            (0..repeats)
+                .map(|_| fft_floor(last.ffts, last.record_len, last.n_fft))
+                .collect(),
+        );
+        let (cat, cmd) = (median(cat), median(cmd));
+        let rss = ph.iter().map(|p| p.rss_kib).max().unwrap_or(0);
+        let med = |f: fn(&Phases) -> f64| median(ph.iter().map(f).collect());
+        let (read, detect, drain, modes) = (
+            med(|p| p.read),
+            med(|p| p.detect),
+            med(|p| p.drain),
+            med(|p| p.modes),
         );
         out += &format!(
-            "| {:.0} min, 2 ch, 48 kHz, 16-bit ({:.1} MB) | {} | {} | {:.3} s (best of 3) | {:.1} MiB |\n",
-            secs / 60.0,
-            std::fs::metadata(&path).map_or(0.0, |m| m.len() as f64 / 1e6),
-            counts.0,
-            counts.1,
-            best,
+            "| {name} | {} ({}) | {cat:.3} s{} | {cmd:.3} s | {:.1}x | {floor:.3} s | {:.1}x | {:.0} MiB |\n",
+            last.hits,
+            last.accepted,
+            if cat_how == "cat" { "" } else { " (read loop)" },
+            cmd / cat,
+            cmd / floor,
             rss as f64 / 1024.0
         );
+        breakdown += &format!(
+            "| {name} | {read:.3} s | {:.3} s | {:.3} s | {modes:.3} s | {} ({}) |\n",
+            (detect - read).max(0.0),
+            (drain - detect).max(0.0),
+            last.ffts,
+            last.n_fft
+        );
         let _ = std::fs::remove_file(&path);
+        let _ = std::fs::remove_file(&json);
+        let _ = std::fs::remove_file(json.with_extension("csv"));
     }
-    let _ = std::fs::remove_dir(&dir);
-    Ok(out + "\n" + &breakdown)
+    Ok(out + &breakdown)
 }
 
 fn decoder(quick: bool) -> String {

@@ -3,7 +3,7 @@
 use super::args::{AnalysisArgs, ChannelArgs};
 use super::report;
 use crate::error::Result;
-use crate::pipeline::{Analysis, analyse_source};
+use crate::pipeline::Analysis;
 use crate::run::{FileKind, RunFile, Variant, safe_path, validate, write_run_files};
 use crate::signal::RoleChoice;
 use crate::source::Source;
@@ -45,6 +45,9 @@ pub struct AnalyzeArgs {
     /// Also print every hit with its verdict.
     #[arg(long, help_heading = "Outputs")]
     pub hits: bool,
+    /// No progress line while a long file is read (it is shown only on a terminal).
+    #[arg(long, short, help_heading = "Outputs")]
+    pub quiet: bool,
     /// With a base channel: the mount's transmissibility in dB at HZ or over LO:HI (the
     /// motors' excitation band, say), measured and from the fitted mount model.
     #[arg(long, value_name = "HZ|LO:HI", value_parser = super::args::parse_freq_or_band, help_heading = "Outputs")]
@@ -108,7 +111,8 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
         check_outputs(&out, &[&a.input])?;
         // Re-analysed over its own earlier run: keep the operator's verdicts, label and note.
         let earlier = earlier_run(&out, &a.input)?;
-        let mut analysis = analyse_source(&mut src, roles, cfg, earlier.is_some())?;
+        let analysis = Analysis::new(&src.info().clone(), roles, cfg, earlier.is_some())?;
+        let mut analysis = drain_shown(&mut src, analysis, a.quiet)?;
         let mut variant = Variant {
             label: stem(&a.input),
             note: String::new(),
@@ -184,6 +188,14 @@ fn same_file(a: &Path, b: &Path) -> bool {
         (Ok(x), Ok(y)) => x == y,
         _ => false,
     }
+}
+
+/// Drain a WAV through an analysis with a progress line on a terminal.
+fn drain_shown(src: &mut WavSource, analysis: Analysis, quiet: bool) -> Result<Analysis> {
+    let mut meter = super::progress::Meter::new(src.frames(), src.frame_bytes(), quiet);
+    let done = crate::pipeline::drain_with_progress(src, analysis, &mut |p| meter.update(p));
+    meter.finish();
+    done
 }
 
 fn finish(

@@ -9,6 +9,7 @@ pub(crate) mod drive_args;
 pub(crate) mod html_report;
 pub mod plot;
 pub(crate) mod ports;
+pub(crate) mod progress;
 pub(crate) mod report;
 pub mod shapes;
 pub(crate) mod simulate;

@@ -167,6 +167,26 @@ impl Floor {
         }
         false
     }
+    /// Add samples in order, exactly as `add` one by one would.
+    fn add_all(&mut self, x: &[f64]) {
+        let mut rest = x;
+        while !rest.is_empty() {
+            let take = (CHUNK - 1 - self.count).min(rest.len());
+            let (run, tail) = rest.split_at(take);
+            for &v in run {
+                self.sum += v;
+                self.sum_sq += v * v;
+            }
+            self.count += take;
+            // The sample that completes a chunk (if any) goes through `add`.
+            if let Some((&v, tail)) = tail.split_first() {
+                self.add(v);
+                rest = tail;
+            } else {
+                rest = tail;
+            }
+        }
+    }
     fn discard_chunk(&mut self) {
         self.sum = 0.0;
         self.sum_sq = 0.0;
@@ -456,73 +476,51 @@ impl HitDetector {
         }
         let n_ch = self.ring.len();
         let n = block.len();
-        let rc = self.roles.response;
         let collect_idle = self.idle_taken < IDLE_RECORDS;
         let mut k = 0;
         while k < n {
             match self.phase {
                 Phase::Idle => {
                     let tc = self.trigger.channel;
-                    let mut th = self.threshold();
-                    let mut base = self.floors[tc].baseline();
                     while k < n {
-                        let x = block.channels[tc][k];
-                        let fired = th.is_some_and(|t| (x - base).abs() > t)
-                            && self.ring[0].len() >= self.pre_len;
-                        if fired {
-                            let idx = self.seen;
-                            for c in 0..n_ch {
-                                let f = &mut self.floors[c];
-                                f.discard_chunk();
-                                self.frozen[c] = (f.baseline(), f.noise().max(self.min_noise[c]));
-                                self.record[c].clear();
-                                self.record[c].extend(self.ring[c].drain(..));
-                                self.record[c].push(block.channels[c][k]);
-                            }
-                            self.idle.clear();
-                            self.seen += 1;
-                            k += 1;
-                            self.phase = Phase::Recording {
-                                trigger: idx,
-                                start: idx - self.pre_len as u64,
-                            };
-                            self.finish_if_full(out);
-                            break;
+                        // The threshold changes only when the trigger channel completes a
+                        // noise chunk, so up to that chunk's end it is fixed and the scan
+                        // for a trigger is one comparison per sample, in bulk; the
+                        // bookkeeping of the quiet samples before it is done in bulk too.
+                        // Both give exactly what sample-by-sample processing gives.
+                        let th = self.threshold();
+                        let base = self.floors[tc].baseline();
+                        let seg = (CHUNK - self.floors[tc].count).min(n - k);
+                        // The pre-trigger ring must be full before the trigger may fire.
+                        let wait = self.pre_len.saturating_sub(self.ring[0].len()).min(seg);
+                        let fire = th.and_then(|t| {
+                            first_above(&block.channels[tc][k + wait..k + seg], base, t)
+                                .map(|j| j + wait)
+                        });
+                        let quiet = fire.unwrap_or(seg);
+                        self.take_quiet(block, k, quiet, collect_idle);
+                        k += quiet;
+                        if fire.is_none() {
+                            continue;
                         }
+                        let idx = self.seen;
                         for c in 0..n_ch {
-                            let v = block.channels[c][k];
-                            if self.floors[c].add(v) && c == tc {
-                                th = self.threshold();
-                                base = self.floors[tc].baseline();
-                            }
-                            if self.pre_len > 0 {
-                                let ring = &mut self.ring[c];
-                                if ring.len() == self.pre_len {
-                                    ring.pop_front();
-                                }
-                                ring.push_back(v);
-                            }
+                            let f = &mut self.floors[c];
+                            f.discard_chunk();
+                            self.frozen[c] = (f.baseline(), f.noise().max(self.min_noise[c]));
+                            self.record[c].clear();
+                            self.record[c].extend(self.ring[c].drain(..));
+                            self.record[c].push(block.channels[c][k]);
                         }
-                        if collect_idle && self.idle_taken < IDLE_RECORDS {
-                            self.idle.push(block.channels[rc][k]);
-                            if self.idle.len() == self.idle_len() {
-                                let mut quiet = std::mem::take(&mut self.idle);
-                                let mean = quiet.iter().sum::<f64>() / quiet.len() as f64;
-                                quiet.iter_mut().for_each(|v| *v -= mean);
-                                // Still ringing from the last tap (a lightly damped mode
-                                // outlasts record and dead time): not a background. A
-                                // background is steady: its first quarter holds no more
-                                // than twice the energy of its last (3 dB).
-                                let q = quiet.len() / 4;
-                                let energy = |x: &[f64]| x.iter().map(|v| v * v).sum::<f64>();
-                                if energy(&quiet[..q]) <= 2.0 * energy(&quiet[quiet.len() - q..]) {
-                                    self.idle_done.push(quiet);
-                                    self.idle_taken += 1;
-                                }
-                            }
-                        }
+                        self.idle.clear();
                         self.seen += 1;
                         k += 1;
+                        self.phase = Phase::Recording {
+                            trigger: idx,
+                            start: idx - self.pre_len as u64,
+                        };
+                        self.finish_if_full(out);
+                        break;
                     }
                 }
                 Phase::Recording { .. } => {
@@ -588,6 +586,54 @@ impl HitDetector {
                 }
             }
         }
+    }
+
+    /// Samples `k..k + m` of `block` hold no trigger: into the noise floors, the
+    /// pre-trigger ring and (while wanted) the quiet stretch for the background spectrum.
+    fn take_quiet(&mut self, block: &Block, k: usize, m: usize, collect_idle: bool) {
+        if m == 0 {
+            return;
+        }
+        for c in 0..self.ring.len() {
+            let x = &block.channels[c][k..k + m];
+            self.floors[c].add_all(x);
+            if self.pre_len > 0 {
+                let ring = &mut self.ring[c];
+                if m >= self.pre_len {
+                    ring.clear();
+                    ring.extend(&x[m - self.pre_len..]);
+                } else {
+                    let excess = (ring.len() + m).saturating_sub(self.pre_len);
+                    ring.drain(..excess);
+                    ring.extend(x);
+                }
+            }
+        }
+        if collect_idle {
+            let idle_len = self.idle_len();
+            let mut rest = &block.channels[self.roles.response][k..k + m];
+            while !rest.is_empty() && self.idle_taken < IDLE_RECORDS {
+                let take = (idle_len - self.idle.len()).min(rest.len());
+                self.idle.extend_from_slice(&rest[..take]);
+                rest = &rest[take..];
+                if self.idle.len() == idle_len {
+                    let mut quiet = std::mem::take(&mut self.idle);
+                    let mean = quiet.iter().sum::<f64>() / quiet.len() as f64;
+                    quiet.iter_mut().for_each(|v| *v -= mean);
+                    // Still ringing from the last tap (a lightly damped mode outlasts
+                    // record and dead time): not a background. A background is steady:
+                    // its first quarter holds no more than twice the energy of its last
+                    // (3 dB).
+                    let q = quiet.len() / 4;
+                    let energy = |x: &[f64]| x.iter().map(|v| v * v).sum::<f64>();
+                    if energy(&quiet[..q]) <= 2.0 * energy(&quiet[quiet.len() - q..]) {
+                        self.idle_done.push(quiet);
+                        self.idle_taken += 1;
+                    }
+                }
+            }
+        }
+        self.seen += m as u64;
     }
 
     fn finish_if_full(&mut self, out: &mut Vec<Hit>) {
@@ -713,6 +759,26 @@ impl HitDetector {
             noise_rms: noise,
         }
     }
+}
+
+/// Index of the first sample deviating from `base` by more than `threshold`. Scanned in
+/// runs of 64 without an early exit inside a run (branch-free, vectorisable).
+fn first_above(x: &[f64], base: f64, threshold: f64) -> Option<usize> {
+    const RUN: usize = 64;
+    let mut at = 0;
+    for run in x.chunks(RUN) {
+        let any = run
+            .iter()
+            .fold(false, |a, &v| a | ((v - base).abs() > threshold));
+        if any {
+            return run
+                .iter()
+                .position(|&v| (v - base).abs() > threshold)
+                .map(|j| at + j);
+        }
+        at += run.len();
+    }
+    None
 }
 
 fn dev_at(block: &Block, channel: usize, k: usize, base: f64) -> f64 {

@@ -41,6 +41,102 @@ const J: Complex64 = Complex64::new(0.0, 1.0);
 /// matrix into a failed fit instead of a hang.
 const SVD_MAX_ITERATIONS: usize = 500;
 
+/// Least-squares work allowed to the band fits of one mode search (or of one hit's
+/// refits), in units of rows x columns^2 of the solves (about 1 ns each here): about a
+/// second, whatever the input.
+pub const FIT_WORK: u64 = 1_200_000_000;
+
+/// Work allowed to one band fit: about 0.4 s, room for the largest fit of the demo and
+/// independent recordings (a band of 7 close modes over 660 lines, 0.37 G units). The
+/// trials of one more mode in a band may together use what the band's own fit used or
+/// `FIT_WORK_TRIALS`, whichever is more.
+pub const FIT_WORK_PER_BAND: u64 = 400_000_000;
+
+/// Work the trials of one more mode in a band may use together at least (about 50 ms).
+pub const FIT_WORK_TRIALS: u64 = 50_000_000;
+
+/// Wall-clock limit of the band fits of one mode search: a backstop behind the work limits
+/// (which alone keep results reproducible) for a machine many times slower than this one.
+pub const FIT_TIME: std::time::Duration = std::time::Duration::from_secs(3);
+
+/// A hard budget on band fits: least-squares work (per band and in all) and wall-clock
+/// time; iterations are limited by `FitConfig::max_iterations`. A fit that runs out is
+/// refused (its modes keep their half-power values) and listed in `refused`.
+#[derive(Debug)]
+pub struct FitBudget {
+    work_left: std::cell::Cell<u64>,
+    band_left: std::cell::Cell<u64>,
+    band_limit: std::cell::Cell<u64>,
+    deadline: Option<std::time::Instant>,
+    failed: std::cell::Cell<bool>,
+    refused: std::cell::RefCell<Vec<((f64, f64), usize)>>,
+}
+
+impl FitBudget {
+    pub fn new(work: u64, time: Option<std::time::Duration>) -> Self {
+        FitBudget {
+            work_left: std::cell::Cell::new(work),
+            band_left: std::cell::Cell::new(FIT_WORK_PER_BAND),
+            band_limit: std::cell::Cell::new(FIT_WORK_PER_BAND),
+            deadline: time.map(|t| std::time::Instant::now() + t),
+            failed: std::cell::Cell::new(false),
+            refused: std::cell::RefCell::new(Vec::new()),
+        }
+    }
+
+    /// The budget of one mode search: `FIT_WORK`, `FIT_WORK_PER_BAND` and `FIT_TIME`.
+    pub fn standard() -> Self {
+        Self::new(FIT_WORK, Some(FIT_TIME))
+    }
+
+    /// Take `work` units; false (and this fit failed) when they are not left.
+    fn spend(&self, work: u64) -> bool {
+        if self.failed.get() {
+            return false;
+        }
+        let (left, band) = (self.work_left.get(), self.band_left.get());
+        let late = self.deadline.is_some_and(|d| std::time::Instant::now() > d);
+        if work > left || work > band || late {
+            self.failed.set(true);
+            return false;
+        }
+        self.work_left.set(left - work);
+        self.band_left.set(band - work);
+        true
+    }
+
+    /// Start one band fit with at most `limit` units of its own.
+    fn start_band(&self, limit: u64) {
+        self.failed.set(false);
+        self.band_limit.set(limit);
+        self.band_left.set(limit);
+    }
+
+    /// Work the last band fit used.
+    fn band_used(&self) -> u64 {
+        self.band_limit.get() - self.band_left.get()
+    }
+
+    /// End one band fit; true when it ran out of budget (then it is listed).
+    fn end_band(&self, band_hz: (f64, f64), modes: usize) -> bool {
+        let failed = self.failed.get();
+        if failed {
+            self.refused.borrow_mut().push((band_hz, modes));
+        }
+        failed
+    }
+
+    /// Band fits refused for lack of budget: (band in Hz, modes in it).
+    pub fn refused(&self) -> Vec<((f64, f64), usize)> {
+        self.refused.borrow().clone()
+    }
+
+    /// True once a fit was refused for lack of budget.
+    pub fn exhausted(&self) -> bool {
+        !self.refused.borrow().is_empty()
+    }
+}
+
 /// A starting point for one mode (apparent values, as read from the windowed curve).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Seed {
@@ -228,6 +324,7 @@ struct Problem<'a> {
     wc: f64,
     delta: f64,
     n: usize,
+    budget: &'a FitBudget,
 }
 
 impl Problem<'_> {
@@ -279,6 +376,10 @@ impl Problem<'_> {
 
     /// Linear coefficients and the residual vector for given poles.
     fn solve(&self, poles: &[Complex64]) -> Option<(DVector<f64>, DVector<f64>)> {
+        let (rows, cols) = (2 * self.omega.len() as u64, 2 * self.n as u64 + 4);
+        if !self.budget.spend(rows * cols * cols) {
+            return None;
+        }
         let mut a = self.basis(poles);
         if !a.iter().all(|v| v.is_finite()) {
             return None;
@@ -326,6 +427,56 @@ pub fn fit_band(
     seeds: &[Seed],
     max_iterations: usize,
 ) -> Option<BandFit> {
+    let budget = FitBudget::new(FIT_WORK, None);
+    fit_band_within(freqs, h, band_hz, seeds, max_iterations, &budget)
+}
+
+/// `fit_band` drawing on a shared budget (`None` when it runs out).
+pub fn fit_band_within(
+    freqs: &[f64],
+    h: &[Complex64],
+    band_hz: (f64, f64),
+    seeds: &[Seed],
+    max_iterations: usize,
+    budget: &FitBudget,
+) -> Option<BandFit> {
+    fit_band_limited(
+        freqs,
+        h,
+        band_hz,
+        seeds,
+        max_iterations,
+        budget,
+        FIT_WORK_PER_BAND,
+    )
+}
+
+/// `fit_band_within` with at most `limit` units of work for this fit.
+fn fit_band_limited(
+    freqs: &[f64],
+    h: &[Complex64],
+    band_hz: (f64, f64),
+    seeds: &[Seed],
+    max_iterations: usize,
+    budget: &FitBudget,
+    limit: u64,
+) -> Option<BandFit> {
+    budget.start_band(limit.min(FIT_WORK_PER_BAND));
+    let fit = fit_band_inner(freqs, h, band_hz, seeds, max_iterations, budget);
+    if budget.end_band(band_hz, seeds.len()) {
+        return None;
+    }
+    fit
+}
+
+fn fit_band_inner(
+    freqs: &[f64],
+    h: &[Complex64],
+    band_hz: (f64, f64),
+    seeds: &[Seed],
+    max_iterations: usize,
+    budget: &FitBudget,
+) -> Option<BandFit> {
     let n = seeds.len();
     let idx = band_lines(freqs, band_hz);
     if n == 0 || idx.len() < 2 * n + 6 {
@@ -346,6 +497,7 @@ pub fn fit_band(
         wc: 0.5 * (w_lo + w_hi),
         delta: 0.5 * (w_hi - w_lo),
         n,
+        budget,
     };
     let seed_poles: Vec<Complex64> = seeds
         .iter()
@@ -587,6 +739,7 @@ pub fn group_seeds(
 /// the damping); the best split is kept if it at least halves the residual, and the extra
 /// mode is added to the list with the `Overlap` flag (close modes that merge into one
 /// peak). The test on the residual is common practice, no source.
+#[allow(clippy::too_many_arguments)]
 pub fn refine_modes(
     freqs: &[f64],
     curve: &Curve,
@@ -595,6 +748,7 @@ pub fn refine_modes(
     modes: &mut Vec<Mode>,
     seeds: &[Seed],
     cfg: &FitConfig,
+    budget: &FitBudget,
 ) {
     let Some(h) = complex_curve(curve) else {
         return;
@@ -602,9 +756,12 @@ pub fn refine_modes(
     for (band, members) in group_seeds(seeds, resolution_hz, cfg) {
         // group_seeds lists members by frequency.
         let group: Vec<Seed> = members.iter().map(|&i| seeds[i]).collect();
-        let Some(fit) = fit_band(freqs, &h, band, &group, cfg.max_iterations) else {
+        let Some(fit) = fit_band_within(freqs, &h, band, &group, cfg.max_iterations, budget) else {
             continue;
         };
+        // The trials of one more mode may together use what the band's fit used, or
+        // `FIT_WORK_TRIALS`, whichever is more.
+        let mut trials_left = budget.band_used().max(FIT_WORK_TRIALS);
         let mut best: (BandFit, Option<usize>) = (fit, None);
         if best.0.error > SPLIT_MIN_ERROR {
             for split in 0..group.len() {
@@ -622,7 +779,17 @@ pub fn refine_modes(
                         damping_ratio: 0.5 * z,
                     },
                 );
-                if let Some(f2) = fit_band(freqs, &h, band, &trial, cfg.max_iterations)
+                let tried = fit_band_limited(
+                    freqs,
+                    &h,
+                    band,
+                    &trial,
+                    cfg.max_iterations,
+                    budget,
+                    trials_left,
+                );
+                trials_left -= budget.band_used().min(trials_left);
+                if let Some(f2) = tried
                     && f2.error < 0.5 * best.0.error
                     && (best.1.is_none() || f2.error < best.0.error)
                 {
@@ -728,6 +895,32 @@ mod tests {
             assert!((f - fr).abs() < 0.05, "rfp f {f} vs {fr}");
             assert!((zeta - z).abs() < 0.1 * z, "rfp zeta {zeta} vs {z}");
         }
+    }
+
+    #[test]
+    fn budget_refuses_a_fit_that_needs_more() {
+        let modes = [(100.0, 0.01, 1.0), (140.0, 0.02, 0.5)];
+        let freqs: Vec<f64> = (0..400).map(|k| k as f64 * 0.5).collect();
+        let h: Vec<Complex64> = freqs.iter().map(|&f| receptance(&modes, f)).collect();
+        let seeds = [
+            Seed {
+                frequency_hz: 101.0,
+                damping_ratio: 0.012,
+            },
+            Seed {
+                frequency_hz: 139.0,
+                damping_ratio: 0.018,
+            },
+        ];
+        let ample = FitBudget::new(FIT_WORK, None);
+        let fit = fit_band_within(&freqs, &h, (80.0, 160.0), &seeds, 60, &ample);
+        assert!(fit.is_some() && !ample.exhausted());
+        // One solve of this band is 2 x 161 lines x 8^2 columns, about 20 000 units: a
+        // budget of 10 000 does not cover the first.
+        let tight = FitBudget::new(10_000, None);
+        let fit = fit_band_within(&freqs, &h, (80.0, 160.0), &seeds, 60, &tight);
+        assert!(fit.is_none());
+        assert_eq!(tight.refused(), vec![((80.0, 160.0), 2)]);
     }
 
     #[test]

@@ -454,6 +454,7 @@ pub fn search_modes(
             }
         })
         .collect();
+    let budget = fit::FitBudget::standard();
     fit::refine_modes(
         freqs,
         curve,
@@ -462,6 +463,7 @@ pub fn search_modes(
         &mut modes,
         &seeds,
         &fit::FitConfig::default(),
+        &budget,
     );
     let poor_fits = if curve.basis == crate::spectra::Basis::Autospectrum {
         powerfit::fit_spectrum_modes(freqs, curve, resolution_hz, tau_s, &mut modes)
@@ -534,6 +536,16 @@ pub fn search_modes(
             "the spectrum fit does not explain the peaks at {} (relative residual over {:.0} %): their half-power values are kept",
             poor.join(", "),
             100.0 * powerfit::MAX_RESIDUAL
+        ));
+    }
+    let refused = budget.refused();
+    if !refused.is_empty() {
+        let bands: Vec<String> = (refused.iter())
+            .map(|((lo, hi), n)| format!("{lo:.0}-{hi:.0} Hz ({n} modes)"))
+            .collect();
+        out.notes.push(format!(
+            "band fits (or trials of one more mode in a band) stopped at their work limit: {}; where a band's fit was stopped its modes keep their half-power values",
+            bands.join(", ")
         ));
     }
     out.modes = modes;

@@ -8,10 +8,9 @@
 //! (from the averaged FRF) normally lies close to it. It describes the scatter between taps
 //! (noise, tap-to-tap variation); a bias common to every hit is not in it.
 
-use super::fit::{FitConfig, Seed, complex_curve, fit_band, fitted_mode};
+use super::fit::{FitBudget, FitConfig, Seed, complex_curve, fit_band_within, fitted_mode};
 use super::{Mode, halfpower};
-use crate::signal::Roles;
-use crate::spectra::{Basis, Curve, SpectraConfig, SpectralAverager, remove_window_damping};
+use crate::spectra::{Basis, Curve, HitSpectra, SpectralAverager, remove_window_damping};
 use serde::{Deserialize, Serialize};
 use std::f64::consts::PI;
 
@@ -112,33 +111,17 @@ pub fn interval(values: &[f64]) -> Option<Interval> {
     })
 }
 
-/// Per-hit curves from accepted records: each record through its own averager (same
-/// windows and FFT as the run), read on `basis`. Coherence of a single hit is 1 and
-/// carries no information.
-pub fn hit_curves(
-    records: &[&[Vec<f64>]],
-    roles: Roles,
-    record_len: usize,
-    trigger_index: usize,
-    fs: f64,
-    cfg: &SpectraConfig,
+/// Per-hit curves from accepted hits' transforms (made once by the run's averager, see
+/// `SpectralAverager::transform`), each read on `basis` as an averager of that one hit
+/// would; on all cores. Coherence of a single hit is 1 and carries no information.
+pub fn hit_curves<H: AsRef<HitSpectra> + Sync>(
+    averager: &SpectralAverager,
+    hits: &[H],
     basis: Basis,
 ) -> Vec<Curve> {
-    records
-        .iter()
-        .filter_map(|r| {
-            let mut avg = SpectralAverager::new(
-                roles,
-                record_len,
-                trigger_index,
-                fs,
-                cfg,
-                ("-".into(), "-".into()),
-                false,
-            );
-            avg.add(r);
-            avg.spectra().curve(basis)
-        })
+    crate::parallel::map(hits, |hs| averager.single(hs.as_ref()).curve(basis))
+        .into_iter()
+        .flatten()
         .collect()
 }
 
@@ -156,6 +139,8 @@ fn estimate_hit(
 ) -> Vec<HitEstimate> {
     let mut out = vec![None; modes.len()];
     let h = complex_curve(curve);
+    // Each hit's refits get the budget of one mode search.
+    let budget = FitBudget::standard();
     // Fitted modes: refit each band of the averaged fit, seeded by the averaged poles.
     if let Some(h) = &h {
         let mut done = vec![false; modes.len()];
@@ -189,7 +174,9 @@ fn estimate_hit(
                 .collect();
             pairs.sort_by(|a, b| a.1.frequency_hz.total_cmp(&b.1.frequency_hz));
             let seeds: Vec<Seed> = pairs.iter().map(|p| p.1).collect();
-            if let Some(fit) = fit_band(freqs, h, f0.band_hz, &seeds, cfg.max_iterations) {
+            if let Some(fit) =
+                fit_band_within(freqs, h, f0.band_hz, &seeds, cfg.max_iterations, &budget)
+            {
                 // Poles come back sorted by frequency, like the seeds.
                 for (k, &(j, _)) in pairs.iter().enumerate() {
                     let fm = fitted_mode(&fit, k, tau_s);
@@ -248,10 +235,9 @@ pub fn attach(
     tau_s: Option<f64>,
 ) {
     let cfg = FitConfig::default();
-    let per_hit: Vec<Vec<HitEstimate>> = hit_curves
-        .iter()
-        .map(|c| estimate_hit(freqs, c, resolution_hz, tau_s, modes, &cfg))
-        .collect();
+    let per_hit: Vec<Vec<HitEstimate>> = crate::parallel::map(hit_curves, |c| {
+        estimate_hit(freqs, c, resolution_hz, tau_s, modes, &cfg)
+    });
     for (j, m) in modes.iter_mut().enumerate() {
         let vals: Vec<(f64, Option<f64>)> = per_hit.iter().filter_map(|h| h[j]).collect();
         // Guard against a hit that locked onto another peak: keep values within 5 % (or

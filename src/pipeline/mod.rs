@@ -11,7 +11,7 @@ pub use result::AnalysisResult;
 /// band ends there (dB); see `Analysis::band`.
 pub const FORCE_BAND_DB: f64 = 20.0;
 use crate::signal::{Block, Roles, StreamInfo};
-use crate::spectra::{Basis, Estimator, Spectra, SpectraConfig, SpectralAverager};
+use crate::spectra::{Basis, Estimator, HitSpectra, Spectra, SpectraConfig, SpectralAverager};
 use serde::{Deserialize, Serialize};
 
 /// Trigger settings before the channel is resolved against a stream.
@@ -106,6 +106,17 @@ pub struct Analysis {
     disarmed: Vec<(u64, u64)>,
     /// The result, once computed, until hits, verdicts or settings change.
     cache: std::sync::Mutex<Option<std::sync::Arc<AnalysisResult>>>,
+    /// Per-hit transforms of the first `SPREAD_RECORDS` kept accepted records (parallel to
+    /// `hits`): made once for the average and reused by the per-hit uncertainty.
+    hit_spectra: Vec<Option<HitSpectra>>,
+    /// Accepted records (hit index, record) waiting to be transformed together on all
+    /// cores; only `drain_into` lets them gather (`batch` > 1), and flushes before it
+    /// returns, so the averages seen from outside are always complete.
+    pending: Vec<(usize, Vec<Vec<f64>>)>,
+    batch: usize,
+    /// Buffers reused between batches: transforms not kept, and per-thread FFT buffers.
+    spare: Vec<HitSpectra>,
+    workers: Vec<crate::spectra::Transformer>,
 }
 
 impl Analysis {
@@ -186,6 +197,11 @@ impl Analysis {
             last: None,
             disarmed: Vec::new(),
             cache: std::sync::Mutex::new(None),
+            hit_spectra: Vec::new(),
+            pending: Vec::new(),
+            batch: 1,
+            spare: Vec::new(),
+            workers: Vec::new(),
         })
     }
 
@@ -282,7 +298,9 @@ impl Analysis {
     pub fn finish(&mut self) -> usize {
         let mut found = Vec::new();
         self.detector.finish(&mut found);
-        self.take_hits(found)
+        let n = self.take_hits(found);
+        self.flush();
+        n
     }
 
     fn take_hits(&mut self, found: Vec<Hit>) -> usize {
@@ -290,22 +308,66 @@ impl Analysis {
         if n > 0 {
             self.invalidate();
         }
-        for hit in found {
-            if hit.verdict.is_accepted() {
-                self.averager.add(&hit.record);
-            }
+        for mut hit in found {
+            let index = self.hits.len();
             self.hits.push(HitSummary::of(&hit));
+            self.hit_spectra.push(None);
             // Streaming analysis keeps the first few accepted records for the per-hit
             // uncertainty (memory stays bounded); retained analyses keep every record.
             let keep = hit.verdict.has_record()
                 && (self.retain
                     || (hit.verdict.is_accepted() && self.kept_for_spread() < SPREAD_RECORDS));
             self.records.push(keep.then(|| hit.record.clone()));
+            if hit.verdict.is_accepted() {
+                if self.batch > 1 {
+                    // Transformed later with others; `flush` gives the record back to
+                    // `last` if this is still the most recent hit.
+                    self.pending.push((index, std::mem::take(&mut hit.record)));
+                } else {
+                    let hs = self.averager.transform(&hit.record);
+                    self.add_hit_spectra(index, hs);
+                }
+            }
             if hit.verdict.has_record() {
                 self.last = Some(hit);
             }
         }
+        if self.pending.len() >= self.batch {
+            self.flush();
+        }
         n
+    }
+
+    /// Transform the waiting records on all cores and add them in stream order.
+    fn flush(&mut self) {
+        if self.pending.is_empty() {
+            return;
+        }
+        let (index, records): (Vec<usize>, Vec<Vec<Vec<f64>>>) =
+            std::mem::take(&mut self.pending).into_iter().unzip();
+        let done = self
+            .averager
+            .transform_batch(records, &mut self.spare, &mut self.workers);
+        for (index, (record, hs)) in index.into_iter().zip(done) {
+            self.add_hit_spectra(index, hs);
+            if let Some(last) = self.last.as_mut()
+                && last.number == self.hits[index].number
+            {
+                last.record = record;
+            }
+        }
+    }
+
+    /// Add an accepted hit's transforms to the average; keep them for the uncertainty
+    /// while its record is kept and fewer than `SPREAD_RECORDS` are stored.
+    fn add_hit_spectra(&mut self, index: usize, hs: HitSpectra) {
+        self.averager.add_spectra(&hs);
+        let stored = self.hit_spectra.iter().filter(|h| h.is_some()).count();
+        if self.records[index].is_some() && stored < SPREAD_RECORDS {
+            self.hit_spectra[index] = Some(hs);
+        } else if self.batch > 1 {
+            self.spare.push(hs);
+        }
     }
 
     /// Change the trigger level from now on.
@@ -370,10 +432,8 @@ impl Analysis {
             self.averager.spectra().units(),
             self.retain || self.roles.force.is_none(),
         );
-        for (h, r) in self.hits.iter().zip(&self.records) {
-            if let (true, Some(r)) = (h.verdict.is_accepted(), r) {
-                avg.add(r);
-            }
+        for hs in self.accepted_hit_spectra() {
+            avg.add_spectra(&hs);
         }
         avg.take_background(&mut self.averager);
         self.averager = avg;
@@ -414,6 +474,29 @@ impl Analysis {
         self.records.iter().filter(|r| r.is_some()).count()
     }
 
+    /// The transforms of the accepted records still in memory, in the order of
+    /// `accepted_records`: the stored ones, the others made now on all cores.
+    pub fn accepted_hit_spectra(&self) -> Vec<std::borrow::Cow<'_, HitSpectra>> {
+        use std::borrow::Cow;
+        let accepted: Vec<(usize, &[Vec<f64>])> = (self.hits.iter().zip(&self.records))
+            .enumerate()
+            .filter(|(_, (h, _))| h.verdict.is_accepted())
+            .filter_map(|(i, (_, r))| Some((i, r.as_deref()?)))
+            .collect();
+        let missing: Vec<&[Vec<f64>]> = (accepted.iter())
+            .filter(|(i, _)| self.hit_spectra[*i].is_none())
+            .map(|(_, r)| *r)
+            .collect();
+        let mut made = self.averager.transform_all(&missing).into_iter();
+        accepted
+            .iter()
+            .filter_map(|(i, _)| match &self.hit_spectra[*i] {
+                Some(hs) => Some(Cow::Borrowed(hs)),
+                None => made.next().map(Cow::Owned),
+            })
+            .collect()
+    }
+
     /// Accepted records still in memory (all of them when retained).
     pub fn accepted_records(&self) -> Vec<&[Vec<f64>]> {
         self.hits
@@ -438,13 +521,38 @@ pub fn analyse_source(
 }
 
 /// Drain a source through an analysis already set up (e.g. with disarmed ranges).
-pub fn drain_into(
+pub fn drain_into(source: &mut dyn crate::source::Source, analysis: Analysis) -> Result<Analysis> {
+    drain_with_progress(source, analysis, &mut |_| {})
+}
+
+/// How far a drain has come, for a progress display.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Progress {
+    /// Stream position in frames (samples per channel).
+    pub frames: u64,
+    pub hits: usize,
+    pub accepted: usize,
+}
+
+/// `drain_into`, calling `progress` after every block. Accepted records are transformed in
+/// batches on all cores (the averages are the same as one by one: sums in stream order).
+pub fn drain_with_progress(
     source: &mut dyn crate::source::Source,
     mut analysis: Analysis,
+    progress: &mut dyn FnMut(Progress),
 ) -> Result<Analysis> {
+    analysis.batch = 4 * crate::parallel::threads();
     while let Some(block) = source.next_block()? {
         analysis.push(&block);
+        progress(Progress {
+            frames: block.start + block.len() as u64,
+            hits: analysis.hits.len(),
+            accepted: analysis.averager.count() + analysis.pending.len(),
+        });
     }
     analysis.finish();
+    analysis.batch = 1;
+    analysis.spare = Vec::new();
+    analysis.workers = Vec::new();
     Ok(analysis)
 }

@@ -156,16 +156,8 @@ impl Analysis {
         let modes = &mut found.modes;
         let records = self.accepted_records();
         if records.len() >= 2 {
-            let d = &self.detector;
-            let curves = crate::modes::uncertainty::hit_curves(
-                &records,
-                self.roles,
-                d.record_len(),
-                d.pretrigger_len(),
-                self.info.sample_rate,
-                &self.cfg.spectra,
-                basis,
-            );
+            let hit_spectra = self.accepted_hit_spectra();
+            let curves = crate::modes::uncertainty::hit_curves(&self.averager, &hit_spectra, basis);
             crate::modes::uncertainty::attach(
                 modes,
                 &spectra.freqs,

@@ -366,6 +366,7 @@ pub fn relative_to(json: &Path, target: &Path) -> String {
 /// (degrees, where defined), coherence (where defined), hit-to-hit spread (dB, response
 /// spectrum only).
 pub fn write_curve_csv(path: &Path, freqs: &[f64], curve: &Curve, band: (f64, f64)) -> Result<()> {
+    use std::fmt::Write as _;
     let mut w = csv::Writer::from_writer(Vec::new());
     let unit = &curve.unit;
     let header = [
@@ -378,25 +379,30 @@ pub fn write_curve_csv(path: &Path, freqs: &[f64], curve: &Curve, band: (f64, f6
     ];
     let enc = |e: csv::Error| Error::new(format!("cannot encode '{}': {e}", path.display()));
     w.write_record(&header).map_err(enc)?;
-    let opt = |v: Option<&Vec<f64>>, k: usize| v.map_or(String::new(), |v| format!("{:.6}", v[k]));
+    let mut bytes = w
+        .into_inner()
+        .map_err(|e| Error::new(format!("cannot encode '{}': {e}", path.display())))?;
+    // The rows hold only numbers (nothing to quote): formatted straight into one buffer,
+    // written at once.
+    let mut rows = String::with_capacity(freqs.len() * 64);
+    let opt = |rows: &mut String, v: Option<&Vec<f64>>, k: usize| {
+        rows.push(',');
+        if let Some(v) = v {
+            let _ = write!(rows, "{:.6}", v[k]);
+        }
+    };
     for (k, &f) in freqs.iter().enumerate() {
         if f < band.0 || f > band.1 {
             continue;
         }
         let m = curve.magnitude[k];
-        w.write_record([
-            format!("{f:.4}"),
-            format!("{m:.6e}"),
-            format!("{:.3}", 20.0 * m.max(1e-300).log10()),
-            opt(curve.phase_deg.as_ref(), k),
-            opt(curve.coherence.as_ref(), k),
-            opt(curve.spread_db.as_ref(), k),
-        ])
-        .map_err(enc)?;
+        let _ = write!(rows, "{f:.4},{m:.6e},{:.3}", 20.0 * m.max(1e-300).log10());
+        opt(&mut rows, curve.phase_deg.as_ref(), k);
+        opt(&mut rows, curve.coherence.as_ref(), k);
+        opt(&mut rows, curve.spread_db.as_ref(), k);
+        rows.push('\n');
     }
-    let bytes = w
-        .into_inner()
-        .map_err(|e| Error::new(format!("cannot encode '{}': {e}", path.display())))?;
+    bytes.extend_from_slice(rows.as_bytes());
     atomic::write_atomic(path, &bytes)
 }
 

@@ -149,6 +149,16 @@ impl Transformer {
         }
     }
 
+    /// Another transformer of the same plan with its own buffers (one per thread).
+    pub fn fresh(&self) -> Self {
+        Transformer {
+            fft: Arc::clone(&self.fft),
+            input: self.fft.make_input_vec(),
+            scratch: self.fft.make_scratch_vec(),
+            dt: self.dt,
+        }
+    }
+
     pub fn n_fft(&self) -> usize {
         self.input.len()
     }

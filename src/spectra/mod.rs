@@ -4,7 +4,8 @@ pub mod averager;
 pub mod window;
 
 use crate::signal::Roles;
-use averager::{CrossAccumulator, Scaling, Spread, Transformer, line_factors};
+pub use averager::Transformer;
+use averager::{CrossAccumulator, Scaling, Spread, line_factors};
 use realfft::num_complex::Complex64;
 use serde::{Deserialize, Serialize};
 pub use window::{WindowConfig, Windows, remove_window_damping};
@@ -178,7 +179,18 @@ pub struct SpectralAverager {
     spread: Option<Spread>,
     count: usize,
     units: (String, String),
-    bufs: [Vec<Complex64>; 3],
+}
+
+/// The transforms of one record as the averager adds them (windowed, zero-padded real
+/// DFT times `dt`, see `averager`): computed once and shared by the average and the
+/// per-hit uncertainty.
+#[derive(Debug, Clone, PartialEq)]
+pub struct HitSpectra {
+    pub response: Vec<Complex64>,
+    /// Present when the averager has a force channel.
+    pub force: Option<Vec<Complex64>>,
+    /// Present when the averager has a base channel.
+    pub base: Option<Vec<Complex64>>,
 }
 
 impl SpectralAverager {
@@ -208,7 +220,6 @@ impl SpectralAverager {
             background_count: 0,
             spread: track_spread.then(|| Spread::new(lines)),
             count: 0,
-            bufs: std::array::from_fn(|_| vec![Complex64::new(0.0, 0.0); lines]),
             roles,
             windows,
             fft,
@@ -225,17 +236,86 @@ impl SpectralAverager {
 
     /// Add one record (one vector per stream channel, baseline removed).
     pub fn add(&mut self, record: &[Vec<f64>]) {
-        let [fx, rx, bx] = &mut self.bufs;
-        self.fft
-            .transform(&record[self.roles.response], &self.windows.exponential, rx);
-        if let (Some(f), Some(acc)) = (self.roles.force, self.force_response.as_mut()) {
-            // Force: force window times the same exponential, so the pole shift is exact.
-            self.fft.transform(&record[f], &self.force_exp, fx);
+        let mut fft = self.fft.fresh();
+        let hs = self.transform_with(&mut fft, record);
+        self.add_spectra(&hs);
+    }
+
+    /// The transforms of one record, as `add` makes them.
+    pub fn transform(&self, record: &[Vec<f64>]) -> HitSpectra {
+        self.transform_with(&mut self.fft.fresh(), record)
+    }
+
+    /// The transforms of many records, on all cores, in order.
+    pub fn transform_all(&self, records: &[&[Vec<f64>]]) -> Vec<HitSpectra> {
+        crate::parallel::map_with(
+            records,
+            || self.fft.fresh(),
+            |fft, r| self.transform_with(fft, r),
+        )
+    }
+
+    fn transform_with(&self, fft: &mut Transformer, record: &[Vec<f64>]) -> HitSpectra {
+        let mut hs = self.blank();
+        self.transform_into(fft, record, &mut hs);
+        hs
+    }
+
+    /// Buffers for one hit's transforms.
+    fn blank(&self) -> HitSpectra {
+        let zero = || vec![Complex64::new(0.0, 0.0); self.fft.lines()];
+        HitSpectra {
+            response: zero(),
+            force: self.force_response.as_ref().map(|_| zero()),
+            base: self.base_response.as_ref().map(|_| zero()),
+        }
+    }
+
+    fn transform_into(&self, fft: &mut Transformer, record: &[Vec<f64>], hs: &mut HitSpectra) {
+        let windows = &self.windows;
+        fft.transform(
+            &record[self.roles.response],
+            &windows.exponential,
+            &mut hs.response,
+        );
+        // Force: force window times the same exponential, so the pole shift is exact.
+        if let (Some(f), Some(fx)) = (self.roles.force, hs.force.as_mut()) {
+            fft.transform(&record[f], &self.force_exp, fx);
+        }
+        if let (Some(b), Some(bx)) = (self.roles.base, hs.base.as_mut()) {
+            fft.transform(&record[b], &windows.exponential, bx);
+        }
+    }
+
+    /// Transform many records on all cores into `out` (one per record), reusing the
+    /// buffers of `spare` and the per-thread FFT buffers of `workers` between calls.
+    pub fn transform_batch(
+        &self,
+        records: Vec<Vec<Vec<f64>>>,
+        spare: &mut Vec<HitSpectra>,
+        workers: &mut Vec<Transformer>,
+    ) -> Vec<(Vec<Vec<f64>>, HitSpectra)> {
+        let threads = crate::parallel::threads().min(records.len()).max(1);
+        while workers.len() < threads {
+            workers.push(self.fft.fresh());
+        }
+        let mut jobs: Vec<(Vec<Vec<f64>>, HitSpectra)> = records
+            .into_iter()
+            .map(|r| (r, spare.pop().unwrap_or_else(|| self.blank())))
+            .collect();
+        crate::parallel::for_each_mut(&mut workers[..threads], &mut jobs, |fft, (r, hs)| {
+            self.transform_into(fft, r, hs)
+        });
+        jobs
+    }
+
+    /// Add one record's transforms (from `transform` of this averager or one like it).
+    pub fn add_spectra(&mut self, hs: &HitSpectra) {
+        let rx = &hs.response;
+        if let (Some(fx), Some(acc)) = (&hs.force, self.force_response.as_mut()) {
             acc.add(fx, rx);
         }
-        if let (Some(b), Some(acc)) = (self.roles.base, self.base_response.as_mut()) {
-            self.fft
-                .transform(&record[b], &self.windows.exponential, bx);
+        if let (Some(bx), Some(acc)) = (&hs.base, self.base_response.as_mut()) {
             acc.add(bx, rx);
         }
         for (s, x) in self.response_auto.iter_mut().zip(rx.iter()) {
@@ -250,6 +330,43 @@ impl SpectralAverager {
             );
         }
         self.count += 1;
+    }
+
+    /// The spectra of one hit alone: what a fresh averager of the same settings gives
+    /// after adding only this hit (no background, no spread), without redoing its FFTs.
+    pub fn single(&self, hs: &HitSpectra) -> Spectra {
+        let lines = self.fft.lines();
+        let one = |a: &[Complex64], b: &[Complex64]| {
+            let mut acc = CrossAccumulator::new(lines);
+            acc.add(a, b);
+            acc.averaged(&self.factors)
+        };
+        let rx = &hs.response;
+        Spectra {
+            freqs: self.freqs(),
+            resolution_hz: self.fs / self.record_len as f64,
+            hits: 1,
+            tau_s: self.windows.tau_s,
+            force_response: (hs.force.as_ref())
+                .filter(|_| self.force_response.is_some())
+                .map(|fx| one(fx, rx)),
+            base_response: (hs.base.as_ref())
+                .filter(|_| self.base_response.is_some())
+                .map(|bx| one(bx, rx)),
+            response_esd: (rx.iter().zip(&self.factors))
+                .map(|(x, c)| x.norm_sqr() * c)
+                .collect(),
+            background_esd: Vec::new(),
+            background_records: 0,
+            spread_db: vec![0.0; lines],
+            force_unit: self.units.0.clone(),
+            response_unit: self.units.1.clone(),
+        }
+    }
+
+    fn freqs(&self) -> Vec<f64> {
+        let df = self.fs / self.fft.n_fft() as f64;
+        (0..self.fft.lines()).map(|k| k as f64 * df).collect()
     }
 
     pub fn count(&self) -> usize {
@@ -274,8 +391,8 @@ impl SpectralAverager {
         };
         let mut padded = vec![0.0; self.record_len];
         padded[..n].copy_from_slice(&response[..n]);
-        let rx = &mut self.bufs[1];
-        self.fft.transform(&padded, w, rx);
+        let mut rx = vec![Complex64::new(0.0, 0.0); self.fft.lines()];
+        self.fft.transform(&padded, w, &mut rx);
         for (s, x) in self.background_auto.iter_mut().zip(rx.iter()) {
             *s += scale * x.norm_sqr();
         }
@@ -289,10 +406,9 @@ impl SpectralAverager {
     }
 
     pub fn spectra(&self) -> Spectra {
-        let df = self.fs / self.fft.n_fft() as f64;
         let n = self.count.max(1) as f64;
         Spectra {
-            freqs: (0..self.fft.lines()).map(|k| k as f64 * df).collect(),
+            freqs: self.freqs(),
             resolution_hz: self.fs / self.record_len as f64,
             hits: self.count,
             tau_s: self.windows.tau_s,
