@@ -349,29 +349,7 @@ impl Problem<'_> {
 
     /// Real basis: per mode the responses to residue 1 and j, then L, jL, U, jU.
     fn basis(&self, poles: &[Complex64]) -> DMatrix<f64> {
-        let k = self.omega.len();
-        let cols = 2 * self.n + 4;
-        let mut a = DMatrix::<f64>::zeros(2 * k, cols);
-        for (i, &w) in self.omega.iter().enumerate() {
-            let jw = J * w;
-            let mut put = |c: usize, v: Complex64| {
-                a[(i, c)] = v.re;
-                a[(k + i, c)] = v.im;
-            };
-            for (r, s) in poles.iter().enumerate() {
-                let p = 1.0 / (jw - s);
-                let q = 1.0 / (jw - s.conj());
-                put(2 * r, p + q);
-                put(2 * r + 1, J * p - J * q);
-            }
-            let u = (w / self.wc).powi(2);
-            let c0 = 2 * self.n;
-            put(c0, Complex64::new(1.0, 0.0));
-            put(c0 + 1, J);
-            put(c0 + 2, Complex64::new(u, 0.0));
-            put(c0 + 3, J * u);
-        }
-        a
+        pole_residue_basis(self.omega, self.wc, poles)
     }
 
     /// Linear coefficients and the residual vector for given poles.
@@ -416,6 +394,36 @@ impl Problem<'_> {
         let (_, r) = self.solve(&self.poles(p))?;
         Some((r.norm_squared(), r))
     }
+}
+
+/// The pole-residue model's real basis at `omega` (rad/s) for `poles`: per mode the
+/// responses to residue 1 and j, then the residual terms L, jL, U, jU (`U` scaled by
+/// `(w / wc)^2`); rows are the real parts, then the imaginary parts. Shared by the band fit
+/// and the multi-point shape fit.
+pub(crate) fn pole_residue_basis(omega: &[f64], wc: f64, poles: &[Complex64]) -> DMatrix<f64> {
+    let k = omega.len();
+    let n = poles.len();
+    let mut a = DMatrix::<f64>::zeros(2 * k, 2 * n + 4);
+    for (i, &w) in omega.iter().enumerate() {
+        let jw = J * w;
+        let mut put = |c: usize, v: Complex64| {
+            a[(i, c)] = v.re;
+            a[(k + i, c)] = v.im;
+        };
+        for (r, s) in poles.iter().enumerate() {
+            let p = 1.0 / (jw - s);
+            let q = 1.0 / (jw - s.conj());
+            put(2 * r, p + q);
+            put(2 * r + 1, J * p - J * q);
+        }
+        let u = (w / wc).powi(2);
+        let c0 = 2 * n;
+        put(c0, Complex64::new(1.0, 0.0));
+        put(c0 + 1, J);
+        put(c0 + 2, Complex64::new(u, 0.0));
+        put(c0 + 3, J * u);
+    }
+    a
 }
 
 /// Fit the modes of `seeds` jointly over `band_hz` of the complex curve `h` (one value per

@@ -19,8 +19,6 @@ use realfft::num_complex::Complex64;
 use serde::{Deserialize, Serialize};
 use std::f64::consts::PI;
 
-const J: Complex64 = Complex64::new(0.0, 1.0);
-
 /// Modal assurance criterion of two real shapes (Allemang & Brown 1982, "A correlation
 /// coefficient for modal vector analysis", IMAC 1):
 /// `MAC = (a . b)^2 / ((a . a)(b . b))`, 1 for the same shape at any scale or sign, 0 for
@@ -82,33 +80,11 @@ struct Shared<'a> {
     omega: &'a [f64],
     ys: Vec<DVector<f64>>,
     wc: f64,
-    n: usize,
 }
 
 impl Shared<'_> {
     fn basis(&self, poles: &[Complex64]) -> DMatrix<f64> {
-        let k = self.omega.len();
-        let mut a = DMatrix::<f64>::zeros(2 * k, 2 * self.n + 4);
-        for (i, &w) in self.omega.iter().enumerate() {
-            let jw = J * w;
-            let mut put = |c: usize, v: Complex64| {
-                a[(i, c)] = v.re;
-                a[(k + i, c)] = v.im;
-            };
-            for (r, s) in poles.iter().enumerate() {
-                let p = 1.0 / (jw - s);
-                let q = 1.0 / (jw - s.conj());
-                put(2 * r, p + q);
-                put(2 * r + 1, J * p - J * q);
-            }
-            let u = (w / self.wc).powi(2);
-            let c0 = 2 * self.n;
-            put(c0, Complex64::new(1.0, 0.0));
-            put(c0 + 1, J);
-            put(c0 + 2, Complex64::new(u, 0.0));
-            put(c0 + 3, J * u);
-        }
-        a
+        crate::modes::fit::pole_residue_basis(self.omega, self.wc, poles)
     }
 
     /// Coefficients per point and the stacked residual of all points.
@@ -178,7 +154,6 @@ pub fn fit_shared(
         omega: &omega,
         ys,
         wc: 0.5 * (omega[0] + omega[k - 1]),
-        n,
     };
     // Starting poles: every point's own fit; the one that explains its point best.
     let mut start: Option<(f64, Vec<Complex64>)> = None;
