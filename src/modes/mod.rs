@@ -544,7 +544,17 @@ pub fn search_modes(
             .map(|((lo, hi), n)| format!("{lo:.0}-{hi:.0} Hz ({n} modes)"))
             .collect();
         out.notes.push(format!(
-            "band fits (or trials of one more mode in a band) stopped at their work limit: {}; where a band's fit was stopped its modes keep their half-power values",
+            "band fits stopped at their work limit: {}; their modes keep their half-power values",
+            bands.join(", ")
+        ));
+    }
+    let stopped = budget.trials_stopped();
+    if !stopped.is_empty() {
+        let bands: Vec<String> = (stopped.iter())
+            .map(|((lo, hi), _)| format!("{lo:.0}-{hi:.0} Hz"))
+            .collect();
+        out.notes.push(format!(
+            "the search for more modes than the peaks show stopped at its work limit in {}: close modes there may be missing",
             bands.join(", ")
         ));
     }

@@ -29,6 +29,7 @@ pub struct FitBudget {
     deadline: Option<std::time::Instant>,
     failed: std::cell::Cell<bool>,
     refused: std::cell::RefCell<Vec<((f64, f64), usize)>>,
+    trials_stopped: std::cell::RefCell<Vec<((f64, f64), usize)>>,
 }
 
 impl FitBudget {
@@ -40,6 +41,7 @@ impl FitBudget {
             deadline: time.map(|t| std::time::Instant::now() + t),
             failed: std::cell::Cell::new(false),
             refused: std::cell::RefCell::new(Vec::new()),
+            trials_stopped: std::cell::RefCell::new(Vec::new()),
         }
     }
 
@@ -76,13 +78,28 @@ impl FitBudget {
         self.band_limit.get() - self.band_left.get()
     }
 
-    /// End one band fit; true when it ran out of budget (then it is listed).
-    pub(super) fn end_band(&self, band_hz: (f64, f64), modes: usize) -> bool {
+    /// End one band fit; true when it ran out of budget (then a band's own fit is listed
+    /// in `refused`, a trial of more modes in `trials_stopped`).
+    pub(super) fn end_band(&self, band_hz: (f64, f64), modes: usize, trial: bool) -> bool {
         let failed = self.failed.get();
         if failed {
-            self.refused.borrow_mut().push((band_hz, modes));
+            let list = if trial {
+                &self.trials_stopped
+            } else {
+                &self.refused
+            };
+            let mut list = list.borrow_mut();
+            if !list.iter().any(|(b, _)| *b == band_hz) {
+                list.push((band_hz, modes));
+            }
         }
         failed
+    }
+
+    /// Bands where the search for more modes stopped at the work limit: (band in Hz, modes
+    /// of the trial).
+    pub fn trials_stopped(&self) -> Vec<((f64, f64), usize)> {
+        self.trials_stopped.borrow().clone()
     }
 
     /// Band fits refused for lack of budget: (band in Hz, modes in it).

@@ -38,7 +38,6 @@ pub use order::{SPLIT_MIN_ERROR, group_seeds, refine_modes};
 pub(crate) use solver::pole_residue_basis;
 use solver::{Problem, SVD_MAX_ITERATIONS, levenberg_marquardt};
 
-
 use super::{Flag, Mode};
 use crate::spectra::{Curve, remove_window_damping};
 use nalgebra::{DMatrix, DVector};
@@ -227,7 +226,6 @@ fn polynomial_roots(c: &[Complex64]) -> Option<Vec<Complex64>> {
     Some(ev.iter().copied().collect())
 }
 
-
 /// Fit the modes of `seeds` jointly over `band_hz` of the complex curve `h` (one value per
 /// line of `freqs`). Returns `None` when the band is too short or the fit degenerates.
 pub fn fit_band(
@@ -258,10 +256,23 @@ pub fn fit_band_within(
         max_iterations,
         budget,
         FIT_WORK_PER_BAND,
+        Start::RfpFirst,
+        false,
     )
 }
 
-/// `fit_band_within` with at most `limit` units of work for this fit.
+/// Where the iterations of a band fit start.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum Start {
+    /// From the rational-fraction poles paired with the seeds, then from the seeds.
+    RfpFirst,
+    /// From the seeds (values of an earlier fit), then from the rational-fraction poles.
+    SeedsFirst,
+}
+
+/// `fit_band_within` with at most `limit` units of work for this fit; `trial` for a trial of
+/// more modes (listed apart when it runs out).
+#[allow(clippy::too_many_arguments)]
 fn fit_band_limited(
     freqs: &[f64],
     h: &[Complex64],
@@ -270,10 +281,12 @@ fn fit_band_limited(
     max_iterations: usize,
     budget: &FitBudget,
     limit: u64,
+    start: Start,
+    trial: bool,
 ) -> Option<BandFit> {
     budget.start_band(limit.min(FIT_WORK_PER_BAND));
-    let fit = fit_band_inner(freqs, h, band_hz, seeds, max_iterations, budget);
-    if budget.end_band(band_hz, seeds.len()) {
+    let fit = fit_band_inner(freqs, h, band_hz, seeds, max_iterations, budget, start);
+    if budget.end_band(band_hz, seeds.len(), trial) {
         return None;
     }
     fit
@@ -286,6 +299,7 @@ fn fit_band_inner(
     seeds: &[Seed],
     max_iterations: usize,
     budget: &FitBudget,
+    start: Start,
 ) -> Option<BandFit> {
     let n = seeds.len();
     let idx = band_lines(freqs, band_hz);
@@ -317,8 +331,8 @@ fn fit_band_inner(
             Complex64::new(-z * w, w * (1.0 - z * z).sqrt())
         })
         .collect();
-    let mut starts = Vec::with_capacity(2);
-    if let Some(rfp) = rfp_poles(&omega, &hb, n) {
+    let rfp_start = || {
+        let rfp = rfp_poles(&omega, &hb, n)?;
         // Pair each seed with the nearest stable in-band RFP pole not taken yet.
         let mut pool: Vec<Complex64> = rfp
             .into_iter()
@@ -337,9 +351,8 @@ fn fit_band_inner(
                 None => paired.push(*sp),
             }
         }
-        starts.push(paired);
-    }
-    starts.push(seed_poles);
+        Some(paired)
+    };
     let valid = |poles: &[Complex64]| {
         let ok = poles.iter().all(|s| {
             s.re < 0.0
@@ -356,13 +369,23 @@ fn fit_band_inner(
         ok && distinct
     };
     let mut best: Option<(f64, Vec<f64>, usize)> = None;
-    for start in starts {
-        if let Some((p, cost, it)) = levenberg_marquardt(&prob, prob.params(&start), max_iterations)
+    let order = match start {
+        Start::RfpFirst => [true, false],
+        Start::SeedsFirst => [false, true],
+    };
+    for from_rfp in order {
+        let begin = if from_rfp {
+            rfp_start()
+        } else {
+            Some(seed_poles.clone())
+        };
+        let Some(begin) = begin else { continue };
+        if let Some((p, cost, it)) = levenberg_marquardt(&prob, prob.params(&begin), max_iterations)
         {
             let poles = prob.poles(&p);
             if valid(&poles) && best.as_ref().is_none_or(|b| cost < b.0) {
                 best = Some((cost, p, it));
-                // The RFP start converged to a valid set: the seeds would only repeat it.
+                // The first start converged to a valid set: the other would only repeat it.
                 break;
             }
         }

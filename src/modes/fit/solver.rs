@@ -9,6 +9,10 @@ use realfft::num_complex::Complex64;
 /// matrix into a failed fit instead of a hang.
 pub(super) const SVD_MAX_ITERATIONS: usize = 500;
 
+/// Linear coefficients, residual vector and (when asked) an orthonormal basis of the model's
+/// column space.
+type Solved = (DVector<f64>, DVector<f64>, Option<DMatrix<f64>>);
+
 /// The separable least-squares problem of stage 2.
 pub(super) struct Problem<'a> {
     pub(super) omega: &'a [f64],
@@ -47,8 +51,15 @@ impl Problem<'_> {
 
     /// Linear coefficients and the residual vector for given poles.
     pub(super) fn solve(&self, poles: &[Complex64]) -> Option<(DVector<f64>, DVector<f64>)> {
+        self.solve_with(poles, false).map(|(c, r, _)| (c, r))
+    }
+
+    /// `solve`, and with `basis` also an orthonormal basis of the model's column space
+    /// (for the projected Jacobian).
+    fn solve_with(&self, poles: &[Complex64], basis: bool) -> Option<Solved> {
         let (rows, cols) = (2 * self.omega.len() as u64, 2 * self.n as u64 + 4);
-        if !self.budget.spend(rows * cols * cols) {
+        let work = rows * cols * cols * if basis { 2 } else { 1 };
+        if !self.budget.spend(work) {
             return None;
         }
         let mut a = self.basis(poles);
@@ -64,19 +75,59 @@ impl Problem<'_> {
         // Least squares by QR (Householder), falling back to SVD when R is singular.
         let qr = a.clone().qr();
         let qty = qr.q().transpose() * &self.y;
-        let mut coef = match qr.r().solve_upper_triangular(&qty) {
-            Some(c) if c.iter().all(|v| v.is_finite()) => c,
+        let (mut coef, q) = match qr.r().solve_upper_triangular(&qty) {
+            Some(c) if c.iter().all(|v| v.is_finite()) => (c, basis.then(|| qr.q())),
             _ => {
                 let svd = a.clone().try_svd(true, true, 1e-15, SVD_MAX_ITERATIONS)?;
                 let smax = svd.singular_values.max();
-                svd.solve(&self.y, 1e-12 * smax).ok()?
+                let c = svd.solve(&self.y, 1e-12 * smax).ok()?;
+                let q = basis.then(|| {
+                    let u = svd.u.as_ref().expect("SVD computed with U");
+                    let keep: Vec<usize> = (0..svd.singular_values.len())
+                        .filter(|&i| svd.singular_values[i] > 1e-12 * smax)
+                        .collect();
+                    u.select_columns(keep.iter())
+                });
+                (c, q)
             }
         };
         let r = &self.y - &a * &coef;
         for (c, nrm) in norms.iter().enumerate() {
             coef[c] /= nrm;
         }
-        Some((coef, r))
+        Some((coef, r, q))
+    }
+
+    /// The Jacobian of the projected residual `r(p) = y - A(p) c(p)` in Kaufman's form,
+    /// `J = -P (dA/dp) c` with `P` the projector off the model's column space (Kaufman
+    /// 1975, "A variable projection method for solving separable nonlinear least squares
+    /// problems", BIT 15; Golub & Pereyra 2003, "Separable nonlinear least squares: the
+    /// variable projection method and its applications", Inverse Problems 19, sec. 3).
+    /// Mode `r` contributes `R/(jw - s) + conj(R)/(jw - conj s)`; with `s = -delta e^q +
+    /// j (w_c + delta u)`, `ds/du = j delta` and `ds/dq = -delta e^q`.
+    fn jacobian(&self, p: &[f64], coef: &DVector<f64>, q: &DMatrix<f64>) -> DMatrix<f64> {
+        let k = self.omega.len();
+        let poles = self.poles(p);
+        let mut jac = DMatrix::<f64>::zeros(2 * k, p.len());
+        for (i, s) in poles.iter().enumerate() {
+            let res = Complex64::new(coef[2 * i], coef[2 * i + 1]);
+            let sigma = -s.re;
+            for (row, &w) in self.omega.iter().enumerate() {
+                let jw = J * w;
+                let a = 1.0 / (jw - s);
+                let b = 1.0 / (jw - s.conj());
+                let d_s = res * a * a;
+                let d_sc = res.conj() * b * b;
+                let du = (d_s - d_sc) * J * self.delta;
+                let dq = -(d_s + d_sc) * sigma;
+                jac[(row, 2 * i)] = -du.re;
+                jac[(k + row, 2 * i)] = -du.im;
+                jac[(row, 2 * i + 1)] = -dq.re;
+                jac[(k + row, 2 * i + 1)] = -dq.im;
+            }
+        }
+        let along = q * (q.transpose() * &jac);
+        jac - along
     }
 
     pub(super) fn cost(&self, p: &[f64]) -> Option<(f64, DVector<f64>)> {
@@ -119,7 +170,12 @@ pub(crate) fn pole_residue_basis(omega: &[f64], wc: f64, poles: &[Complex64]) ->
     a
 }
 
-/// Levenberg-Marquardt on the projected cost with a forward-difference Jacobian.
+/// A step that lowers the cost by less than this fraction ends the iterations: the poles
+/// then move by far less than their statistical uncertainty.
+const CONVERGED: f64 = 1e-10;
+
+/// Levenberg-Marquardt on the projected cost with Kaufman's Jacobian (`Problem::jacobian`):
+/// one factorisation per iteration besides the trial steps.
 /// Returns (parameters, cost, iterations).
 pub(super) fn levenberg_marquardt(
     prob: &Problem,
@@ -132,15 +188,8 @@ pub(super) fn levenberg_marquardt(
     let mut it = 0;
     while it < max_iterations {
         it += 1;
-        let mut jac = DMatrix::<f64>::zeros(r.len(), m);
-        // Forward differences in the scaled parameters.
-        let h = 1e-7;
-        for j in 0..m {
-            let mut pp = p.clone();
-            pp[j] += h;
-            let (_, rp) = prob.cost(&pp)?;
-            jac.set_column(j, &((rp - &r) / h));
-        }
+        let (coef, _, q) = prob.solve_with(&prob.poles(&p), true)?;
+        let jac = prob.jacobian(&p, &coef, &q?);
         let jtj = jac.transpose() * &jac;
         let g = jac.transpose() * &r;
         let mut improved = false;
@@ -165,7 +214,7 @@ pub(super) fn levenberg_marquardt(
                     r = rt;
                     lambda = (lambda / 3.0).max(1e-12);
                     improved = true;
-                    if gain < 1e-12 {
+                    if gain < CONVERGED {
                         return Some((p, cost, it));
                     }
                     break;
@@ -179,4 +228,3 @@ pub(super) fn levenberg_marquardt(
     }
     Some((p, cost, it))
 }
-
