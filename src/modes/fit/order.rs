@@ -41,7 +41,7 @@ pub fn group_seeds(
 /// unexplained, one more mode is tried (each fitted mode split in two, and a mode where the
 /// fit misses most); the best trial is kept when it leaves at most `KEEP_RATIO` of the
 /// residual and each of its poles makes at least `OWN_SHARE` of the curve at its own
-/// frequency, up to `MAX_ADDED` more modes. Added modes join the list with the `Overlap`
+/// frequency and lies a bandwidth inside the band, up to `MAX_ADDED` more modes. Added modes join the list with the `Overlap`
 /// flag (close modes that merge into one peak). The tests are common practice, no source.
 #[allow(clippy::too_many_arguments)]
 pub fn refine_modes(
@@ -213,12 +213,15 @@ fn trials_of_one_more(fit: &BandFit, freqs: &[f64], h: &[Complex64]) -> Vec<(Vec
 }
 
 /// Every pole of the fit makes at least `OWN_SHARE` of the fitted curve at its own
-/// frequency.
+/// frequency and lies at least its own half-power bandwidth inside the band (a pole at the
+/// edge stands in for modes outside the band: common practice, no source).
 fn every_pole_shows(fit: &BandFit) -> bool {
     fit.poles.iter().zip(&fit.residues).all(|(s, r)| {
         let f = s.im / (2.0 * PI);
+        let bw = -s.re / PI;
+        let inside = f - bw >= fit.band_hz.0 && f + bw <= fit.band_hz.1;
         let own = r.norm() / (-s.re).max(f64::MIN_POSITIVE);
-        own >= OWN_SHARE * fit.evaluate(f).norm()
+        inside && own >= OWN_SHARE * fit.evaluate(f).norm()
     })
 }
 
