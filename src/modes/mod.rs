@@ -29,6 +29,9 @@ pub enum Flag {
     NoHalfPower,
     /// The exponential window's added damping exceeds the measured damping.
     WindowDominated,
+    /// Found by the band fit inside a neighbour's peak, with no peak of its own (close
+    /// modes merged); its prominence is how far it stands over the fitted neighbours.
+    FitOnly,
 }
 
 impl Flag {
@@ -39,6 +42,7 @@ impl Flag {
             Flag::LowCoherence => "low coherence",
             Flag::NoHalfPower => "no half-power",
             Flag::WindowDominated => "window-dominated",
+            Flag::FitOnly => "fit only",
         }
     }
     pub fn short(self) -> &'static str {
@@ -48,6 +52,7 @@ impl Flag {
             Flag::LowCoherence => "C",
             Flag::NoHalfPower => "H",
             Flag::WindowDominated => "W",
+            Flag::FitOnly => "F",
         }
     }
 }
@@ -496,7 +501,11 @@ pub fn search_modes(
         // peak's width: it is not confirmed as a mode. And no built-up frame or arm has
         // a Q over 1000 (damping under MIN_DAMPING).
         // A weak peak (allowed on coherent curves) must show its own half-power band.
-        let weak = m.prominence_db < cfg.min_prominence_db && m.half_power.is_none();
+        // A mode the fit found inside a neighbour's peak is vouched for by the fit (it explains
+        // the band, and the mode makes a quarter of the curve at its frequency), not by a peak.
+        let weak = m.prominence_db < cfg.min_prominence_db
+            && m.half_power.is_none()
+            && !m.flags.contains(&Flag::FitOnly);
         let unconfirmed = weak || (!coherent && m.half_power.is_none() && m.fit.is_none());
         let too_sharp = m.damping_ratio.is_some_and(|z| z < MIN_DAMPING);
         if unconfirmed

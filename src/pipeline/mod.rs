@@ -10,6 +10,12 @@ pub use result::AnalysisResult;
 /// How far the force spectrum may fall below its low-frequency level before the search
 /// band ends there (dB); see `Analysis::band`.
 pub const FORCE_BAND_DB: f64 = 20.0;
+/// The band never goes on past where the force spectrum is this far down (dB), however
+/// coherent the curve: common practice, no source.
+pub const FORCE_BAND_MAX_DB: f64 = 40.0;
+/// Lines over which the coherence's median decides whether the band goes on past
+/// `FORCE_BAND_DB`.
+pub const COHERENT_SPAN: usize = 64;
 use crate::signal::{Block, Roles, StreamInfo};
 use crate::spectra::{Basis, Estimator, HitSpectra, Spectra, SpectraConfig, SpectralAverager};
 use serde::{Deserialize, Serialize};

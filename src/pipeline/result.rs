@@ -2,7 +2,7 @@
 //! (the command-line printer, the app, run files, benchmarks). Nothing outside the
 //! pipeline calls into `spectra` or `modes` to assemble a result of its own.
 
-use super::{Analysis, FORCE_BAND_DB};
+use super::{Analysis, COHERENT_SPAN, FORCE_BAND_DB, FORCE_BAND_MAX_DB};
 use crate::modes::softmount::{DOUBTFUL_ERROR, Isolation, MountFit, MountModel};
 use crate::modes::{Flag, MIN_LINES, Mode, ModeSearch, SearchContext, search_modes};
 use crate::spectra::{Basis, Curve, Spectra};
@@ -186,13 +186,15 @@ impl Analysis {
     /// channel, where the hammer's force spectrum has fallen 20 dB below its level at the
     /// bottom of the band: above that the tap puts little energy in and the FRF is the
     /// ratio of two noises (the usable band of an impact is commonly taken to end 10 to
-    /// 20 dB down; common practice, no source).
+    /// 20 dB down; common practice, no source). Where the FRF is still coherent there
+    /// (a sensitive sensor, a quiet room), the band goes on as long as it stays coherent,
+    /// down to `FORCE_BAND_MAX_DB`.
     pub fn band(&self, spectra: &Spectra, notes: &mut Vec<String>) -> (f64, f64) {
         let (lo, hi) = self.cfg.modes.band_hz;
         if !self.cfg.modes.band_from_data || !matches!(self.basis(), Basis::Frf(_)) {
             return (lo, hi);
         }
-        let Some((gff, _, _)) = spectra.force_response.as_ref() else {
+        let Some((gff, gxx, gfx)) = spectra.force_response.as_ref() else {
             return (lo, hi);
         };
         let f = &spectra.freqs;
@@ -207,19 +209,46 @@ impl Analysis {
         base.sort_by(f64::total_cmp);
         let reference = base[base.len() / 2];
         let limit = reference * 10f64.powf(-FORCE_BAND_DB / 10.0);
-        let cut = (start..gff.len())
-            .find(|&k| gff[k] < limit)
-            .map(|k| f[k])
-            .filter(|&c| c < hi && c > lo);
-        match cut {
-            Some(c) => {
-                notes.push(format!(
-                    "modes searched up to {c:.0} Hz: there the hammer's force spectrum is {FORCE_BAND_DB:.0} dB below its level at the bottom of the band, so the tap drives little above it (a harder tip reaches higher; --band overrides)"
-                ));
-                (lo, c)
+        let floor = reference * 10f64.powf(-FORCE_BAND_MAX_DB / 10.0);
+        let Some(mut k) = (start..gff.len()).find(|&k| gff[k] < limit) else {
+            return (lo, hi);
+        };
+        let force_cut = f[k];
+        // Past that point the band goes on while the FRF stays coherent (median over
+        // `COHERENT_SPAN` lines at least `LOW_COHERENCE`, and above what noise reaches by
+        // chance) and the force is no more than `FORCE_BAND_MAX_DB` down.
+        let hits = spectra.hits;
+        let needed = crate::modes::LOW_COHERENCE.max(crate::modes::noise_coherence(hits));
+        let coherence = |j: usize| {
+            let d = gff[j] * gxx[j];
+            if d > 0.0 { gfx[j].norm_sqr() / d } else { 0.0 }
+        };
+        if hits >= 2 {
+            let mut window: Vec<f64> = Vec::with_capacity(COHERENT_SPAN);
+            while k + COHERENT_SPAN <= gff.len() && gff[k] >= floor && f[k] < hi {
+                window.clear();
+                window.extend((k..k + COHERENT_SPAN).map(coherence));
+                window.sort_by(f64::total_cmp);
+                if window[COHERENT_SPAN / 2] < needed {
+                    break;
+                }
+                k += 1;
             }
-            None => (lo, hi),
         }
+        let cut = f[k.min(f.len() - 1)];
+        if !(cut < hi && cut > lo) {
+            return (lo, hi);
+        }
+        notes.push(if cut > force_cut {
+            format!(
+                "modes searched up to {cut:.0} Hz: the hammer's force spectrum is {FORCE_BAND_DB:.0} dB below its level at the bottom of the band from {force_cut:.0} Hz, and the curve stays coherent up to {cut:.0} Hz (--band overrides)"
+            )
+        } else {
+            format!(
+                "modes searched up to {cut:.0} Hz: there the hammer's force spectrum is {FORCE_BAND_DB:.0} dB below its level at the bottom of the band, so the tap drives little above it (a harder tip reaches higher; --band overrides)"
+            )
+        });
+        (lo, cut)
     }
 
     /// The soft mount read from the transmissibility, when there is a base channel.

@@ -129,6 +129,7 @@ pub fn refine_modes(
                     let mut new_mode = modes[members[nearest]].clone();
                     new_mode.flags.retain(|f| *f == Flag::LowCoherence);
                     new_mode.flags.push(Flag::Overlap);
+                    new_mode.flags.push(Flag::FitOnly);
                     new_mode.half_power = None;
                     new_mode.half_power_estimate = None;
                     new_mode.uncertainty = None;

@@ -147,6 +147,7 @@ pub fn doubtful(m: &Mode) -> bool {
     m.flags.iter().any(|f| match f {
         Flag::LowCoherence | Flag::FewLines | Flag::WindowDominated | Flag::NoHalfPower => true,
         Flag::Overlap => m.method != "fit",
+        Flag::FitOnly => false,
     })
 }
 

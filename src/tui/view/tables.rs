@@ -197,7 +197,8 @@ pub(super) fn draw_modes(m: &Model, f: &mut Frame, area: Rect) {
     }
     if legend_h > 0 {
         f.render_widget(
-            Paragraph::new("L few lines O overlap C low coh H no half-power W window").style(dim()),
+            Paragraph::new("L few lines O overlap C low coh H no half-power W window F fit only")
+                .style(dim()),
             l,
         );
     }
