@@ -137,7 +137,7 @@ fn demo_runs_saves_and_restores_the_terminal() {
         dir.display()
     );
     s.send(&[&line, "Enter"]);
-    s.wait_for(&["tapmodes", "ARMED", "Signal", "taps 0/0 kept"]);
+    s.wait_for(&["ARMED", "Signal", "taps 0/0 kept", "nothing to save"]);
     assert_eq!(
         s.display("#{alternate_on}"),
         "1",

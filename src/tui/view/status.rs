@@ -25,8 +25,7 @@ fn cut(text: &str, room: usize) -> String {
 }
 
 /// The status line: trigger and recording state, taps, save state, link health, rate,
-/// label, source. When it does not fit, the name badge goes first, then the source is
-/// cut (marked "~"); the states and counters always stay.
+/// label, source; what gives way on narrow screens is said below.
 pub(super) fn draw_status(m: &Model, f: &mut Frame, area: Rect) {
     let (acc, total) = m.counts();
     let live = m.live.as_ref();
@@ -65,12 +64,10 @@ pub(super) fn draw_status(m: &Model, f: &mut Frame, area: Rect) {
         format!("lost {lost} pkt, overrun {overrun}"),
         health,
     ));
-    spans.push(Span::raw(format!(
-        " | {:.0} Hz | '{}'",
-        m.header.sample_rate, m.label
-    )));
+    let rate = Span::raw(format!(" | {:.0} Hz", m.header.sample_rate));
+    let mut tail = vec![Span::raw(format!(" | '{}'", m.label))];
     if m.header.demo && m.auto_tap_on {
-        spans.push(Span::raw(format!(
+        tail.push(Span::raw(format!(
             " | auto-tap {:.1} s",
             m.auto_tap_s.unwrap_or(0.0)
         )));
@@ -78,13 +75,27 @@ pub(super) fn draw_status(m: &Model, f: &mut Frame, area: Rect) {
     let room = area.width as usize;
     let badge = Span::styled(" tapmodes ", bold().add_modifier(Modifier::REVERSED));
     let source = format!(" | {}", m.header.source);
-    let used = width(&spans);
-    if used + badge.content.len() + source.chars().count() <= room {
-        spans.insert(0, badge);
-    }
-    let left = room.saturating_sub(width(&spans));
-    if left >= 6 {
+    // Narrow screens give up, in order: the name badge, the end of the source (cut text
+    // is marked "~"), the sample rate, the rest of the source; the label is cut last
+    // (marked "~"). The states and counters always stay.
+    let fixed = width(&spans) + width(&tail);
+    if fixed + rate.content.len() + 6 <= room {
+        if fixed + rate.content.len() + badge.content.len() + source.chars().count() <= room {
+            spans.insert(0, badge);
+        }
+        spans.push(rate);
+        spans.extend(tail);
+        let left = room.saturating_sub(width(&spans));
         spans.push(Span::styled(cut(&source, left), dim()));
+    } else if fixed + 6 <= room {
+        spans.extend(tail);
+        let left = room.saturating_sub(width(&spans));
+        spans.push(Span::styled(cut(&source, left), dim()));
+    } else {
+        let before = width(&spans);
+        let label_room = room.saturating_sub(before);
+        let joined: String = tail.iter().map(|s| s.content.as_ref()).collect();
+        spans.push(Span::raw(cut(&joined, label_room)));
     }
     f.render_widget(Paragraph::new(Line::from(spans)), area);
 }
