@@ -20,10 +20,10 @@ pub(super) fn key(m: &mut Model, k: KeyEvent, fx: &mut Vec<Effect>) {
             m.mode = Mode::Normal;
             match k.code {
                 _ if ctrl_c => act(m, Action::Quit, fx),
-                KeyCode::Char('?') | KeyCode::Right | KeyCode::Tab | KeyCode::PageDown => {
-                    if page + 1 < HELP_PAGES {
-                        m.mode = Mode::Help(page + 1);
-                    }
+                KeyCode::Char('?') | KeyCode::Right | KeyCode::Tab | KeyCode::PageDown
+                    if page + 1 < HELP_PAGES =>
+                {
+                    m.mode = Mode::Help(page + 1);
                 }
                 KeyCode::Left | KeyCode::BackTab | KeyCode::PageUp => {
                     m.mode = Mode::Help(page.saturating_sub(1));
