@@ -220,10 +220,12 @@ impl App {
                     }
                     Ok(None) => {
                         *ended = true;
+                        updates.extend(engine.end_of_stream());
                         updates.push(Update::Ended(None));
                     }
                     Err(e) => {
                         *ended = true;
+                        updates.extend(engine.end_of_stream());
                         updates.push(Update::Ended(Some(e.to_string())));
                     }
                 }

@@ -242,6 +242,30 @@ fn a_record_being_taken_shows_recording() {
 }
 
 #[test]
+fn a_source_ending_inside_a_record_gives_a_tap_cut_short() {
+    let dir = scratch("cut");
+    let launch = Launch::simulated("tm9-arm-solid", 1, Some(1.4), false, false, dir).unwrap();
+    let mut app = App::headless(launch).unwrap();
+    app.pump_seconds(1.0);
+    app.press(' ');
+    app.pump_seconds(0.2);
+    assert!(app.screen(80, 24).contains("RECORDING"));
+    while app.pump(64) > 0 {}
+    let a = app.model.analysis.clone().expect("the tap");
+    assert_eq!(a.hits.len(), 1);
+    assert_eq!(a.hits[0].verdict, tapmodes::hits::Verdict::CutShort);
+    for (w, h) in SIZES {
+        let s = app.screen(w, h);
+        let top = s.lines().next().unwrap();
+        assert!(
+            top.contains("SOURCE STOPPED") && !top.contains("RECORDING"),
+            "{top}"
+        );
+        assert!(s.contains("x cut short"), "{w}x{h}\n{s}");
+    }
+}
+
+#[test]
 fn transmissibility_view_shows_the_mount_from_the_pipeline() {
     let dir = scratch("mount");
     let mut app = demo("tm9-stack-soft", 9.0, &dir);

@@ -186,6 +186,21 @@ impl Engine {
         }
     }
 
+    /// The source has ended: a record still being taken becomes a tap cut short (every
+    /// trigger gets a verdict, and RECORDING does not stay on), the recording is flushed
+    /// and a new verdict saved.
+    pub fn end_of_stream(&mut self) -> Vec<Update> {
+        let mut out = Vec::new();
+        if self.analysis.finish() > 0 {
+            self.changed();
+            self.autosave_due = true;
+            out.push(Update::Analysis(Arc::new(self.snapshot())));
+            out.extend(self.autosave());
+        }
+        self.flush_recording(&mut out);
+        out
+    }
+
     pub(crate) fn flush_recording(&mut self, out: &mut Vec<Update>) {
         self.last_flush = self.position;
         out.extend(self.saver.submit(Job::Flush));

@@ -34,12 +34,14 @@ pub(super) fn draw_status(m: &Model, f: &mut Frame, area: Rect) {
         .map_or(0, |c| c.packets_lost + c.packets_corrupt);
     let overrun = live.map_or(0, |l| l.overrun_frames);
     let armed = live.map_or(m.armed, |l| l.armed);
-    let mut spans = vec![if armed {
+    let mut spans = vec![if m.ended.is_some() {
+        Span::styled(" SOURCE STOPPED ", bold().fg(Color::Red))
+    } else if armed {
         Span::styled(" ARMED ", bold().fg(Color::Green))
     } else {
         Span::styled(" DISARMED ", bold().fg(Color::Red))
     }];
-    if let Some(p) = live.and_then(|l| l.recording) {
+    if let Some(p) = live.and_then(|l| l.recording).filter(|_| m.ended.is_none()) {
         spans.push(Span::styled(
             format!("RECORDING {:>3.0} % ", 100.0 * p),
             bold().fg(Color::Yellow).add_modifier(Modifier::REVERSED),
