@@ -296,6 +296,37 @@ fn transmissibility_view_shows_the_mount_from_the_pipeline() {
 }
 
 #[test]
+fn the_mount_shows_when_no_peak_passes_the_mode_tests() {
+    let dir = scratch("mount-no-modes");
+    let mut launch =
+        Launch::simulated("tm9-stack-soft", 1, Some(9.0), true, false, dir.clone()).unwrap();
+    // A search band above every mode of the stack: no mode, the mount is still fitted.
+    launch.config.modes.band_hz = (2600.0, 3000.0);
+    launch.config.basis = Some(tapmodes::spectra::Basis::Transmissibility);
+    let mut app = App::headless(launch).unwrap();
+    app.pump_seconds(9.0);
+    let result = app.engine().unwrap().analysis().result();
+    assert!(result.modes().is_empty(), "{:?}", result.modes());
+    let mount = result
+        .mount
+        .clone()
+        .expect("a mount fitted by the pipeline");
+    let freq = format!("mount {:.1} Hz", mount.natural_frequency_hz);
+    for (w, h) in SIZES {
+        let s = app.screen(w, h);
+        assert!(
+            s.contains("Modes 0 found (transmissibility)"),
+            "{w}x{h}\n{s}"
+        );
+        assert!(s.contains("no peak passed the mode tests"), "{w}x{h}\n{s}");
+        assert!(
+            s.contains(&freq) && s.contains("unexplained"),
+            "{w}x{h}\n{s}"
+        );
+    }
+}
+
+#[test]
 fn help_pages_explain_the_words_and_the_workflow() {
     let dir = scratch("help");
     let mut app = demo("tm9-arm-solid", 1.0, &dir);

@@ -106,10 +106,15 @@ pub(super) fn draw_modes(m: &Model, f: &mut Frame, area: Rect) {
     let inner = block.inner(area);
     f.render_widget(block, area);
     if modes.is_empty() {
-        f.render_widget(
-            Paragraph::new("no modes yet (they need accepted taps)").style(dim()),
-            inner,
-        );
+        let said = if a.is_some_and(|a| a.accepted > 0) {
+            "no peak passed the mode tests (the run file's notes say why)"
+        } else {
+            "no modes yet (they need accepted taps)"
+        };
+        // A soft mount is shown whether or not the curve has modes.
+        let mut lines = vec![Line::from(Span::styled(said, dim()))];
+        lines.extend(a.map_or_else(Vec::new, |a| crate::tui::drive_view::mount_lines(a)));
+        f.render_widget(Paragraph::new(lines).wrap(Wrap { trim: false }), inner);
         return;
     }
     let wide = inner.width >= 56;
