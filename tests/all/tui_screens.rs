@@ -292,6 +292,23 @@ fn transmissibility_view_shows_the_mount_from_the_pipeline() {
         for part in [&freq, &onset, &fit] {
             assert!(s.contains(part.as_str()), "{w}x{h}: '{part}' missing\n{s}");
         }
+        // The cursor read-out keeps the coherence whole (three decimals) in a ratio unit.
+        let line = s
+            .lines()
+            .find(|l| l.contains("cursor "))
+            .expect("cursor line");
+        let coh: String = line
+            .split("coh ")
+            .nth(1)
+            .expect("coherence on the cursor line")
+            .chars()
+            .take(5)
+            .collect();
+        assert!(
+            coh.len() == 5 && coh.chars().nth(1) == Some('.'),
+            "{w}x{h}: '{coh}' in {line}"
+        );
+        assert!(line.contains(" ratio)"), "{line}");
     }
 }
 

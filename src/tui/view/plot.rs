@@ -322,14 +322,24 @@ impl Widget for CurvePlot<'_> {
         if let Some(c) = curve
             && let Some(i) = nearest(&c.freqs, cursor)
         {
-            spans.push(Span::raw(format!(
-                "  {:.1} dB ({} {})",
+            let mut parts = vec![format!(
+                "{:.1} dB ({} {})",
                 c.db[i],
                 fmt_sig(c.magnitude[i]),
                 c.unit
-            )));
+            )];
             if let Some(coh) = &c.coherence {
-                spans.push(Span::raw(format!("  coh {:.3}", coh[i])));
+                parts.push(format!("coh {:.3}", coh[i]));
+            }
+            // Two blanks between the values where they fit, one where they would not.
+            let wide: usize = parts.iter().map(|p| p.chars().count() + 2).sum();
+            let gap = if spans[0].content.chars().count() + wide <= readout.width as usize {
+                "  "
+            } else {
+                " "
+            };
+            for p in parts {
+                spans.push(Span::raw(format!("{gap}{p}")));
             }
         }
         // The visible range is the first thing to go on a narrow plot (the axis shows it).
