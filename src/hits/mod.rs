@@ -332,6 +332,18 @@ impl HitDetector {
         self.pre_len
     }
 
+    /// While a record is being taken: the share of it filled so far (0..1); `None` when
+    /// no record is open.
+    pub fn record_progress(&self) -> Option<f64> {
+        match self.phase {
+            Phase::Recording { .. } => {
+                let done = self.record.first().map_or(0, Vec::len) as f64;
+                Some((done / self.record_len.max(1) as f64).clamp(0.0, 1.0))
+            }
+            _ => None,
+        }
+    }
+
     /// Current trigger threshold (deviation from baseline) in the trigger channel's unit,
     /// or `None` while the noise floor is still being measured.
     pub fn threshold(&self) -> Option<f64> {

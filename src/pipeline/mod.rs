@@ -503,6 +503,12 @@ impl Analysis {
             .collect()
     }
 
+    /// The record of hit `index` when it is in memory (every hit with a record when
+    /// retained; none for taps that came too soon, were cut short or interrupted).
+    pub fn record(&self, index: usize) -> Option<&[Vec<f64>]> {
+        self.records.get(index).and_then(|r| r.as_deref())
+    }
+
     /// Accepted records still in memory (all of them when retained).
     pub fn accepted_records(&self) -> Vec<&[Vec<f64>]> {
         self.hits

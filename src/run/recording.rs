@@ -116,7 +116,14 @@ impl RecordingWriter {
     pub fn create_fresh(dir: &Path, label: &str, info: &StreamInfo) -> Result<(Self, String)> {
         let (stem, file) = naming::claim_stem(dir, label)?;
         let wav = dir.join(format!("{stem}.wav"));
-        Ok((Self::with_file(&wav, file, info)?, stem))
+        match Self::with_file(&wav, file, info) {
+            Ok(w) => Ok((w, stem)),
+            Err(e) => {
+                // A failed start leaves no empty file behind and frees the name.
+                let _ = std::fs::remove_file(&wav);
+                Err(e)
+            }
+        }
     }
 
     /// Create (or replace) the recording at `path`.

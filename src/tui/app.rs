@@ -220,10 +220,12 @@ impl App {
                     }
                     Ok(None) => {
                         *ended = true;
+                        updates.extend(engine.end_of_stream());
                         updates.push(Update::Ended(None));
                     }
                     Err(e) => {
                         *ended = true;
+                        updates.extend(engine.end_of_stream());
                         updates.push(Update::Ended(Some(e.to_string())));
                     }
                 }
@@ -283,7 +285,10 @@ impl App {
         let seq = self.model.sent_seq + 1;
         match &mut self.link {
             Link::Inline { engine, .. } => {
-                let _ = engine.command(seq, Cmd::Shutdown);
+                // What closing the files says (a recording removed) reaches the model.
+                for u in engine.command(seq, Cmd::Shutdown) {
+                    self.dispatch(Msg::Update(u));
+                }
             }
             Link::Threaded { cmds, worker } => {
                 let _ = cmds.send((seq, Cmd::Shutdown));

@@ -167,19 +167,53 @@ pub fn mount_lines(a: &AnalysisSnap) -> Vec<Line<'static>> {
     let Some(mf) = &a.run.mount else {
         return Vec::new();
     };
-    let mut out = vec![Line::from(vec![
-        Span::styled("mount ", Style::default().add_modifier(Modifier::BOLD)),
-        Span::raw(format!(
-            "{:.1} Hz, damping {:.1} %, isolates above {:.0} Hz",
-            mf.natural_frequency_hz,
-            100.0 * mf.damping_ratio,
+    // All of it from the pipeline's result (`AnalysisResult::mount`, `isolation`), as the
+    // run file holds it: nothing is fitted here.
+    let model = if mf.loss_factor.is_some() {
+        "hysteretic"
+    } else {
+        "viscous"
+    };
+    let doubtful = mf.error > crate::modes::softmount::DOUBTFUL_ERROR;
+    // Lines of at most about 44 characters: they fit the narrow mode panel unwrapped.
+    let mut out = vec![
+        Line::from(vec![
+            Span::styled("mount ", Style::default().add_modifier(Modifier::BOLD)),
+            Span::raw(format!(
+                "{:.1} Hz, damping {:.1} %",
+                mf.natural_frequency_hz,
+                100.0 * mf.damping_ratio,
+            )),
+        ]),
+        Line::from(format!(
+            "  isolates above {:.0} Hz",
             mf.isolation_onset_hz()
         )),
-    ])];
+        Line::from(vec![
+            Span::raw(format!(
+                "  {model} fit, {:.0} % unexplained",
+                100.0 * mf.error
+            )),
+            if doubtful {
+                Span::styled(": doubtful", Style::default().fg(Color::Red))
+            } else {
+                Span::raw(": good")
+            },
+        ]),
+    ];
     let db = |v: Option<f64>| v.map_or("-".into(), |v| format!("{v:+.1}"));
+    if let Some(i) = &a.run.isolation {
+        out.push(Line::from(format!(
+            "{:.0}-{:.0} Hz {} dB, model {}",
+            i.band_hz.0,
+            i.band_hz.1,
+            db(i.measured_db),
+            db(i.model_db)
+        )));
+    }
     for iso in a.run.drive.iter().flat_map(|d| &d.isolation) {
         out.push(Line::from(format!(
-            "{} {:.0}-{:.0} Hz: {} dB meas, {} model, coh {}",
+            "{} {:.0}-{:.0} Hz {} dB, model {}, coh {}",
             short_name(&iso.band),
             iso.hz.0,
             iso.hz.1,
@@ -191,7 +225,7 @@ pub fn mount_lines(a: &AnalysisSnap) -> Vec<Line<'static>> {
             // The full sentence is in the run file and the analyze output.
             let text = match iso.low_coherence_pct {
                 Some(p) if iso.measured_db.is_some() => format!(
-                    "  ! coh < {} on {p:.0} % of lines: measured value untrusted",
+                    "  ! coh < {} on {p:.0} % of lines: untrusted",
                     super::super::drive::isolation::MIN_TRUSTED_COHERENCE
                 ),
                 _ => "  ! no measured value here".to_string(),

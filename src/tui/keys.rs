@@ -16,6 +16,8 @@ pub enum Action {
     SelectUp,
     SelectDown,
     SelectLatest,
+    /// Read the selected tap in full (verdict, whole reason, peaks).
+    TapDetail,
     Estimator,
     View,
     ZoomIn,
@@ -39,11 +41,12 @@ pub enum Action {
 
 /// The key map: (keys as shown, action, what it does). The help overlay is built from it.
 pub const KEYS: &[(&str, Action, &str)] = &[
-    ("?", Action::Help, "this help (Esc closes)"),
+    ("?", Action::Help, "this help (? next page)"),
     ("a", Action::Arm, "arm / disarm the trigger"),
     ("+/-", Action::LevelUp, "trigger level up / down"),
     ("Up/Down", Action::SelectUp, "select a tap in the list"),
     ("End", Action::SelectLatest, "follow the latest tap"),
+    ("Enter", Action::TapDetail, "read the selected tap whole"),
     ("y", Action::Accept, "keep the selected tap"),
     ("x", Action::Reject, "drop the selected tap"),
     ("e", Action::Estimator, "estimator H1 / H2"),
@@ -63,6 +66,109 @@ pub const KEYS: &[(&str, Action, &str)] = &[
     ("t", Action::AutoTap, "auto taps on/off (demo)"),
     ("n", Action::NewRun, "start a new run (new files)"),
     ("q", Action::Quit, "quit (asks if unsaved)"),
+];
+
+/// Pages of the help overlay: keys, the words on screen (two pages), the workflow.
+pub const HELP_PAGES: usize = 4;
+
+/// The abbreviations of the curve and the mode table (and the command line's tables), as
+/// (term, meaning); a blank term continues the line above.
+pub const WORDS_CURVE: &[(&str, &str)] = &[
+    ("FRF", "frequency response: response per unit force (g/N)"),
+    (
+        "H1 / H2",
+        "FRF estimates: H1 = cross / force spectrum (noise on",
+    ),
+    (
+        "",
+        "the response), H2 = response / cross (noise on the force)",
+    ),
+    (
+        "coh",
+        "coherence 0-1: share of the response the force explains;",
+    ),
+    (
+        "",
+        "near 1 at a mode = trustworthy, low = noise or double taps",
+    ),
+    (
+        "f Hz, damp %",
+        "mode frequency; damping ratio in % of critical",
+    ),
+    ("Q", "sharpness of a peak: 1 / (2 x damping ratio)"),
+    (
+        "prom dB",
+        "how far a peak rises over the noise floor (tables)",
+    ),
+    (
+        "95 % f / z",
+        "95 % interval of the frequency (Hz) / damping (% pts)",
+    ),
+];
+
+/// The abbreviations of the status line, the tap list and the comparison.
+pub const WORDS_BOARD: &[(&str, &str)] = &[
+    (
+        "trig +-X N",
+        "trigger level around the baseline, in the channel unit;",
+    ),
+    (
+        "",
+        "(10.0x) = times the measured noise, (abs) = a fixed level",
+    ),
+    ("lost N pkt", "serial packets lost or corrupt on the link"),
+    (
+        "overrun N",
+        "samples dropped because the app fell behind the source",
+    ),
+    (
+        "RECORDING",
+        "a tap's record is filling: wait before the next tap",
+    ),
+    ("+ / x / *", "tap kept / dropped / decided by you (y, x)"),
+    (
+        "flags",
+        "L few lines, O overlap, C low coherence, H no half-power",
+    ),
+    (
+        "",
+        "points, W damping mostly the window's (see Modes panel),",
+    ),
+    ("", "F fit only: found inside a neighbour's peak"),
+    (
+        "band",
+        "mode in / near / clear of a motor band (rot = rotation,",
+    ),
+    ("", "2x, 3x its multiples, bp = blade pass)"),
+    (
+        "mount",
+        "soft mount: frequency, damping, share of the curve the",
+    ),
+    (
+        "",
+        "fit leaves unexplained, isolation above 1.41 x frequency",
+    ),
+    (
+        "df %, dz pts",
+        "frequency change in %, damping change in % points",
+    ),
+    (
+        "k ratio",
+        "(f now / f saved)^2: stiffness ratio at equal mass",
+    ),
+];
+
+/// The bench workflow in a few lines (the help's last page).
+pub const WORKFLOW: &[&str] = &[
+    "1  Secure the part, fix the sensor. a arms the trigger; +/- until the idle",
+    "   signal stays inside the red trigger lines.",
+    "2  Tap 5 to 10 times at one point (Space in the demo); let RECORDING end",
+    "   before the next tap.",
+    "3  Check coh near 1 at the modes. Up/Down picks a tap, Enter reads it whole,",
+    "   x drops a bad tap (double hit, overload), y keeps it again.",
+    "4  l names the variant; s saves WAV + JSON + CSV (taps are autosaved too).",
+    "5  n starts the next variant with new files: change the part, tap again.",
+    "6  p picks saved runs to overlay; c shows the comparison (df %, k ratio).",
 ];
 
 /// Safety cautions shown in the help overlay.
@@ -90,6 +196,7 @@ pub fn action_for(key: &KeyEvent) -> Option<Action> {
         KeyCode::Up | KeyCode::Char('k') => Action::SelectUp,
         KeyCode::Down | KeyCode::Char('j') => Action::SelectDown,
         KeyCode::End => Action::SelectLatest,
+        KeyCode::Enter => Action::TapDetail,
         KeyCode::Char('e') => Action::Estimator,
         KeyCode::Char('v') => Action::View,
         KeyCode::Char('i') => Action::ZoomIn,

@@ -10,6 +10,7 @@ pub mod app;
 pub mod drive_view;
 pub mod engine;
 pub mod keys;
+mod modal;
 pub mod model;
 pub mod view;
 
@@ -17,7 +18,7 @@ use crate::error::{Error, Result};
 use crate::pipeline::AnalysisConfig;
 use crate::signal::Roles;
 use crate::source::Source;
-use engine::Inbox;
+use engine::{Inbox, Update};
 use ratatui::Terminal;
 use ratatui::backend::CrosstermBackend;
 use ratatui::crossterm::event::{self, Event, KeyEventKind};
@@ -82,7 +83,7 @@ impl Drop for TerminalGuard {
 pub fn run(launch: Launch) -> Result<()> {
     let (tx, rx) = std::sync::mpsc::channel::<Inbox>();
     let mut app = App::threaded(launch, tx.clone())?;
-    let result = {
+    let result = (|| {
         let _guard = TerminalGuard::enter()?;
         let backend = CrosstermBackend::new(std::io::stdout());
         let mut terminal = Terminal::new(backend)
@@ -103,13 +104,22 @@ pub fn run(launch: Launch) -> Result<()> {
             }
         });
         app::drive(&mut app, &mut terminal, &rx, |_, _| false)
-    };
+    })();
+    // Also when the terminal could not be set up: the recording is closed (and removed
+    // if no tap landed), never left empty.
     app.shutdown();
     // The screen is gone at once; files still being written are finished before exit.
     if app.finishing() {
         eprintln!("tapmodes: finishing the analysis and the run files...");
     }
     app.wait_for_files();
+    // What the file side said after the screen was gone (a failed save, a removed
+    // recording) goes to the terminal.
+    while let Ok(m) = rx.try_recv() {
+        if let Inbox::Update(Update::Problem(p)) = m {
+            eprintln!("tapmodes: {p}");
+        }
+    }
     result
 }
 

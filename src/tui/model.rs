@@ -9,7 +9,7 @@ use crate::run::compare::{VariantComparison, compare};
 use crate::run::curve_read::SavedCurve;
 use crate::signal::{ChannelInfo, Roles};
 use crate::spectra::{Basis, Estimator};
-use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyEventKind, KeyModifiers};
+use ratatui::crossterm::event::{KeyEvent, KeyEventKind};
 use std::path::PathBuf;
 use std::sync::Arc;
 
@@ -42,7 +42,10 @@ pub struct PickItem {
 #[derive(Debug, Clone, PartialEq)]
 pub enum Mode {
     Normal,
-    Help,
+    /// The help overlay at this page (`HELP_PAGES`; one page shows all on large screens).
+    Help(usize),
+    /// The selected tap in full: verdict, the whole reason, peaks.
+    TapDetail,
     /// Typing a variant label.
     Label(String),
     Picker {
@@ -212,7 +215,7 @@ impl Model {
         self.header.sample_rate / 2.0
     }
 
-    fn send(&mut self, cmd: Cmd, fx: &mut Vec<Effect>) {
+    pub(super) fn send(&mut self, cmd: Cmd, fx: &mut Vec<Effect>) {
         self.sent_seq += 1;
         if cmd.changes_run() {
             self.change_seq = self.sent_seq;
@@ -235,7 +238,7 @@ pub fn update(m: &mut Model, msg: Msg) -> Vec<Effect> {
     match msg {
         Msg::Key(k) => {
             if k.kind == KeyEventKind::Press {
-                key(m, k, &mut fx);
+                super::modal::key(m, k, &mut fx);
             }
         }
         Msg::Action(a) => {
@@ -284,122 +287,19 @@ pub fn update(m: &mut Model, msg: Msg) -> Vec<Effect> {
     fx
 }
 
-fn key(m: &mut Model, k: KeyEvent, fx: &mut Vec<Effect>) {
-    let ctrl_c = k.modifiers.contains(KeyModifiers::CONTROL) && k.code == KeyCode::Char('c');
-    match m.mode.clone() {
-        Mode::Normal => {
-            if let Some(a) = action_for(&k) {
-                m.notice = None;
-                act(m, a, fx);
-            }
-        }
-        Mode::Help => {
-            if ctrl_c {
-                m.mode = Mode::Normal;
-                act(m, Action::Quit, fx);
-            } else {
-                m.mode = Mode::Normal;
-            }
-        }
-        Mode::Label(mut buf) => match k.code {
-            KeyCode::Enter => {
-                m.mode = Mode::Normal;
-                let label = buf.trim().to_string();
-                if label.is_empty() {
-                    m.notice = Some("the label stays as it was (empty)".into());
-                } else if label != m.label {
-                    m.label = label.clone();
-                    m.send(Cmd::SetLabel(label), fx);
-                }
-            }
-            KeyCode::Esc => m.mode = Mode::Normal,
-            KeyCode::Backspace => {
-                buf.pop();
-                m.mode = Mode::Label(buf);
-            }
-            KeyCode::Char(c) if !ctrl_c => {
-                if buf.chars().count() < MAX_LABEL && !c.is_control() {
-                    buf.push(c);
-                }
-                m.mode = Mode::Label(buf);
-            }
-            _ => {
-                if ctrl_c {
-                    m.mode = Mode::Normal;
-                }
-            }
-        },
-        Mode::Picker { mut items, cursor } => match k.code {
-            KeyCode::Up | KeyCode::Char('k') => {
-                m.mode = Mode::Picker {
-                    cursor: cursor.saturating_sub(1),
-                    items,
-                }
-            }
-            KeyCode::Down | KeyCode::Char('j') => {
-                m.mode = Mode::Picker {
-                    cursor: (cursor + 1).min(items.len().saturating_sub(1)),
-                    items,
-                }
-            }
-            KeyCode::Char(' ') | KeyCode::Char('x') => {
-                if let Some(it) = items.get_mut(cursor) {
-                    it.chosen = !it.chosen;
-                }
-                m.mode = Mode::Picker { items, cursor };
-            }
-            KeyCode::Enter => {
-                m.mode = Mode::Normal;
-                fx.push(Effect::LoadRuns(
-                    items
-                        .into_iter()
-                        .filter(|i| i.chosen)
-                        .map(|i| i.path)
-                        .collect(),
-                ));
-            }
-            _ => m.mode = Mode::Normal,
-        },
-        Mode::ConfirmQuit => match k.code {
-            KeyCode::Char('s') => {
-                m.send(Cmd::Save, fx);
-                m.quit = true;
-                fx.push(Effect::Quit);
-            }
-            KeyCode::Char('q') | KeyCode::Char('y') => {
-                m.quit = true;
-                fx.push(Effect::Quit);
-            }
-            _ if ctrl_c => {
-                m.quit = true;
-                fx.push(Effect::Quit);
-            }
-            _ => m.mode = Mode::Normal,
-        },
-        Mode::ConfirmNewRun => match k.code {
-            KeyCode::Char('s') => {
-                m.send(Cmd::Save, fx);
-                start_new_run(m, fx);
-            }
-            KeyCode::Char('n') | KeyCode::Char('y') => start_new_run(m, fx),
-            _ => m.mode = Mode::Normal,
-        },
-    }
-}
-
-fn start_new_run(m: &mut Model, fx: &mut Vec<Effect>) {
-    m.mode = Mode::Normal;
-    m.selected = None;
-    m.follow = true;
-    m.send(Cmd::NewRun, fx);
-    m.notice = Some("new run started: new recording, empty average".into());
-}
-
-fn act(m: &mut Model, a: Action, fx: &mut Vec<Effect>) {
+pub(super) fn act(m: &mut Model, a: Action, fx: &mut Vec<Effect>) {
     let span = m.view_hz.1 - m.view_hz.0;
     let n_hits = m.counts().1;
     match a {
-        Action::Help => m.mode = Mode::Help,
+        Action::Help => m.mode = Mode::Help(0),
+        Action::TapDetail => {
+            if n_hits == 0 {
+                m.notice = Some("no tap to read yet".into());
+            } else {
+                m.selected = Some(m.selected.unwrap_or(n_hits - 1).min(n_hits - 1));
+                m.mode = Mode::TapDetail;
+            }
+        }
         Action::Arm => {
             m.armed = !m.armed;
             m.send(Cmd::SetArmed(m.armed), fx);
@@ -562,7 +462,7 @@ fn act(m: &mut Model, a: Action, fx: &mut Vec<Effect>) {
             if m.unsaved() {
                 m.mode = Mode::ConfirmNewRun;
             } else {
-                start_new_run(m, fx);
+                super::modal::start_new_run(m, fx);
             }
         }
         Action::Quit => {

@@ -24,6 +24,7 @@ mod plot_pictures;
 mod serial_pty;
 mod shapes;
 mod strip;
+mod tui_screens;
 mod tui_tmux;
 mod tui_update;
 mod tui_view;

@@ -45,6 +45,15 @@ impl Session {
             .unwrap();
         assert!(st.success());
     }
+    fn resize(&self, w: u16, h: u16) {
+        let st = self
+            .cmd()
+            .args(["resize-window", "-t", &self.name])
+            .args(["-x", &w.to_string(), "-y", &h.to_string()])
+            .status()
+            .unwrap();
+        assert!(st.success(), "tmux could not resize the window");
+    }
     fn capture(&self) -> String {
         let out = self
             .cmd()
@@ -137,7 +146,7 @@ fn demo_runs_saves_and_restores_the_terminal() {
         dir.display()
     );
     s.send(&[&line, "Enter"]);
-    s.wait_for(&["tapmodes", "ARMED", "Signal", "taps 0/0 kept"]);
+    s.wait_for(&["ARMED", "Signal", "taps 0/0 kept", "nothing to save"]);
     assert_eq!(
         s.display("#{alternate_on}"),
         "1",
@@ -162,6 +171,19 @@ fn demo_runs_saves_and_restores_the_terminal() {
         .find(|l| l.contains("Modes") && l.contains("found"))
         .expect("mode panel title");
     assert!(!modes_line.contains("Modes 0 found"), "{pane}");
+
+    // Shrunk to 80x24 in a real terminal: the app redraws to the new size and the footer
+    // still offers save, saved runs, quit and help; then back to 120x40.
+    s.resize(80, 24);
+    let pane = s.wait_for(&["s save  p runs  q quit  ? help", "taps 3/3 kept"]);
+    assert!(
+        pane.lines().all(|l| l.chars().count() <= 80),
+        "drawn for 80 columns:\n{pane}"
+    );
+    let foot = pane.lines().rfind(|l| !l.trim().is_empty()).unwrap_or("");
+    assert!(foot.contains("q quit"), "footer: {foot}\n{pane}");
+    s.resize(120, 40);
+    s.wait_for(&["Taps 3 kept of 3", "reason"]);
 
     s.send(&["s"]);
     s.wait_for(&["saved e2e-run.json"]);

@@ -53,8 +53,14 @@ fn keys_map_to_actions() {
             .chars()
             .map(k)
             .chain(
-                [KeyCode::Up, KeyCode::Down, KeyCode::End, KeyCode::Left]
-                    .map(|c| KeyEvent::new(c, KeyModifiers::NONE)),
+                [
+                    KeyCode::Up,
+                    KeyCode::Down,
+                    KeyCode::End,
+                    KeyCode::Left,
+                    KeyCode::Enter,
+                ]
+                .map(|c| KeyEvent::new(c, KeyModifiers::NONE)),
             )
             .any(|e| action_for(&e) == Some(*action));
         assert!(found, "{action:?} has no key");

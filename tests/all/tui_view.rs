@@ -113,7 +113,7 @@ fn a_rejected_tap_shows_its_verdict_and_reason() {
     plan.hammer.double_hit_chance = 1.0;
     let app = from_plan(plan, 4.0, &dir, "bouncy");
     let a = app.model.analysis.clone().expect("a hit");
-    let last = a.last_hit.as_ref().unwrap();
+    let last = a.hits.last().unwrap();
     assert_eq!(last.verdict, Verdict::DoubleHit);
     assert!(!last.reason.is_empty());
     for (w, h) in SIZES {

@@ -56,6 +56,8 @@ pub struct Engine {
     position: u64,
     /// New hits are waiting to be saved.
     autosave_due: bool,
+    /// Each tap's traces, made once (parallel to the analysis's hits).
+    traces: Vec<Option<Arc<HitTraces>>>,
 }
 
 impl Engine {
@@ -100,6 +102,7 @@ impl Engine {
             last_flush: 0,
             position: 0,
             autosave_due: false,
+            traces: Vec::new(),
         })
     }
 
@@ -183,6 +186,21 @@ impl Engine {
         }
     }
 
+    /// The source has ended: a record still being taken becomes a tap cut short (every
+    /// trigger gets a verdict, and RECORDING does not stay on), the recording is flushed
+    /// and a new verdict saved.
+    pub fn end_of_stream(&mut self) -> Vec<Update> {
+        let mut out = Vec::new();
+        if self.analysis.finish() > 0 {
+            self.changed();
+            self.autosave_due = true;
+            out.push(Update::Analysis(Arc::new(self.snapshot())));
+            out.extend(self.autosave());
+        }
+        self.flush_recording(&mut out);
+        out
+    }
+
     pub(crate) fn flush_recording(&mut self, out: &mut Vec<Update>) {
         self.last_flush = self.position;
         out.extend(self.saver.submit(Job::Flush));
@@ -263,6 +281,7 @@ impl Engine {
         cfg.estimator = self.analysis.config().estimator;
         cfg.basis = self.analysis.config().basis;
         self.analysis = Analysis::new(&self.setup.info, self.setup.roles, cfg, true)?;
+        self.traces.clear();
         out.extend(self.saver.submit(Job::NewRecording(self.label.clone())));
         // The new run has nothing to save yet.
         self.changed();
@@ -336,12 +355,41 @@ impl Engine {
             generation: self.generation,
             applied_seq: self.applied_seq,
             recorded_frames: saved.recorded_frames,
+            recording: if self.armed {
+                d.record_progress()
+            } else {
+                None
+            },
             stem: saved.stem,
+        }
+    }
+
+    /// Make the traces of hits that have none yet (each record is reduced once).
+    fn update_traces(&mut self) {
+        let a = &self.analysis;
+        let fs = self.setup.info.sample_rate;
+        let roles = a.roles();
+        let pre = a.detector().pretrigger_len();
+        for index in self.traces.len()..a.hits().len() {
+            let t = a.record(index).map(|record| {
+                let force = roles.force.map(|f| {
+                    let end = (pre + (FORCE_VIEW_S * fs) as usize).min(record[f].len());
+                    Envelope::of(&record[f][..end], HIT_BUCKETS, fs)
+                });
+                Arc::new(HitTraces {
+                    number: a.hits()[index].number,
+                    force,
+                    response: Envelope::of(&record[roles.response], HIT_BUCKETS, fs),
+                    pretrigger_s: pre as f64 / fs,
+                })
+            });
+            self.traces.push(t);
         }
     }
 
     pub fn snapshot(&mut self) -> AnalysisSnap {
         self.version += 1;
+        self.update_traces();
         let a = &self.analysis;
         // The pipeline's one result: the save that follows renders the same value.
         let result = a.result();
@@ -360,32 +408,6 @@ impl Engine {
             unit: c.unit,
             freqs: spectra.freqs.clone(),
         });
-        let fs = self.setup.info.sample_rate;
-        let roles = a.roles();
-        let info = a.info();
-        let last_hit = a.last_hit().map(|h| {
-            let pre = a.detector().pretrigger_len();
-            let force = roles.force.map(|f| {
-                let end = (pre + (FORCE_VIEW_S * fs) as usize).min(h.record[f].len());
-                Envelope::of(&h.record[f][..end], HIT_BUCKETS, fs)
-            });
-            // The verdict may have changed since (operator decision): read it from the list.
-            let summary = a.hits().iter().find(|s| s.number == h.number);
-            HitView {
-                number: h.number,
-                verdict: summary.map_or(h.verdict, |s| s.verdict),
-                reason: summary.map_or(h.reason.clone(), |s| s.reason.clone()),
-                peak_force: h.peak_force,
-                peak_response: h.peak_response,
-                force,
-                response: Envelope::of(&h.record[roles.response], HIT_BUCKETS, fs),
-                pretrigger_s: pre as f64 / fs,
-                force_unit: roles
-                    .force
-                    .map_or(String::new(), |f| info.channels[f].unit.clone()),
-                response_unit: info.channels[roles.response].unit.clone(),
-            }
-        });
         let mut run = RunFile::from_analysis(
             a,
             &result,
@@ -402,7 +424,7 @@ impl Engine {
             version: self.version,
             hits: a.hits().to_vec(),
             accepted: a.accepted(),
-            last_hit,
+            traces: self.traces.clone(),
             basis,
             estimator: a.config().estimator,
             curve,

@@ -1,6 +1,6 @@
 //! What the screen and the engine say to each other: commands, snapshots, updates.
 
-use crate::hits::{TriggerLevel, Verdict};
+use crate::hits::TriggerLevel;
 use crate::modes::Mode;
 use crate::pipeline::HitSummary;
 use crate::run::RunFile;
@@ -125,25 +125,22 @@ pub struct LiveSnap {
     /// Sequence number of the last command the engine has applied.
     pub applied_seq: u64,
     pub recorded_frames: u64,
+    /// A tap's record is being taken: the share filled so far (0..1).
+    pub recording: Option<f64>,
     /// File stem of this run's files in the output folder.
     pub stem: String,
 }
 
-/// The last hit, ready to draw.
+/// The traces of one tap's record, ready to draw (its verdict and numbers are in the
+/// `HitSummary` at the same index, which follows the operator's decisions).
 #[derive(Debug, Clone, PartialEq)]
-pub struct HitView {
+pub struct HitTraces {
     pub number: usize,
-    pub verdict: Verdict,
-    pub reason: String,
-    pub peak_force: Option<f64>,
-    pub peak_response: f64,
     /// Force from the record start to `FORCE_VIEW_S` after the trigger.
     pub force: Option<Envelope>,
     /// Response over the whole record.
     pub response: Envelope,
     pub pretrigger_s: f64,
-    pub force_unit: String,
-    pub response_unit: String,
 }
 
 /// A curve for the screen, in dB.
@@ -165,7 +162,9 @@ pub struct AnalysisSnap {
     pub version: u64,
     pub hits: Vec<HitSummary>,
     pub accepted: usize,
-    pub last_hit: Option<HitView>,
+    /// Each tap's traces, parallel to `hits`; `None` for taps without a record (too
+    /// soon, cut short, interrupted).
+    pub traces: Vec<Option<Arc<HitTraces>>>,
     pub basis: Basis,
     pub estimator: Estimator,
     pub curve: Option<CurveSnap>,

@@ -60,6 +60,9 @@ pub(crate) struct SaverCore {
     recorder: Option<RecordingWriter>,
     /// The JSON of this run has been written at least once.
     wrote_json: bool,
+    /// A write of this run's files was asked for (it may have failed: then the recording
+    /// is kept whatever happens).
+    asked_to_write: bool,
     state: Arc<Mutex<SaverState>>,
     /// Tests: how long each run-file write takes at least (a slow disk).
     #[cfg(test)]
@@ -80,6 +83,7 @@ impl SaverCore {
             stem,
             recorder: Some(recorder),
             wrote_json: false,
+            asked_to_write: false,
             state,
             #[cfg(test)]
             slow_writes: None,
@@ -122,6 +126,7 @@ impl SaverCore {
                 generation,
                 auto,
             } => {
+                self.asked_to_write = true;
                 if self.write(*files, auto, generation, &mut out) {
                     written = Some(generation);
                 }
@@ -139,7 +144,7 @@ impl SaverCore {
                 }
             }
             Job::NewRecording(label) => {
-                if let Err(e) = self.finish() {
+                if let Err(e) = self.finish(&mut out) {
                     out.push(Update::Problem(format!("cannot start a new run: {e}")));
                 } else {
                     match RecordingWriter::create_fresh(&self.out_dir, &label, &self.info) {
@@ -147,13 +152,14 @@ impl SaverCore {
                             self.recorder = Some(recorder);
                             self.stem = stem;
                             self.wrote_json = false;
+                            self.asked_to_write = false;
                         }
                         Err(e) => out.push(Update::Problem(format!("cannot start a new run: {e}"))),
                     }
                 }
             }
             Job::Finish => {
-                if let Err(e) = self.finish() {
+                if let Err(e) = self.finish(&mut out) {
                     out.push(Update::Problem(e.to_string()));
                 }
             }
@@ -254,11 +260,28 @@ impl SaverCore {
         true
     }
 
-    fn finish(&mut self) -> Result<()> {
-        match self.recorder.take() {
-            Some(r) => r.finish(),
-            None => Ok(()),
+    /// Close the recording. A recording no run file describes and no save was asked for
+    /// (no tap landed) is removed, and the screen told so: nothing is left without its
+    /// JSON. A recording whose save failed is kept.
+    fn finish(&mut self, out: &mut Vec<Update>) -> Result<()> {
+        let Some(r) = self.recorder.take() else {
+            return Ok(());
+        };
+        r.finish()?;
+        if !self.wrote_json && !self.asked_to_write {
+            let wav = self.path("wav");
+            match std::fs::remove_file(&wav) {
+                Ok(()) => out.push(Update::Problem(format!(
+                    "no tap in this run: its recording '{}' was removed",
+                    wav.display()
+                ))),
+                Err(e) => out.push(Update::Problem(format!(
+                    "cannot remove the recording '{}' of a run without taps: {e}",
+                    wav.display()
+                ))),
+            }
         }
+        Ok(())
     }
 }
 

@@ -140,9 +140,7 @@ fn analyse(mut engine: Engine, work: Receiver<Work>, out: Sender<Inbox>) {
                 fed = true;
             }
             Ok(Work::Feed(Feed::Ended(e))) => {
-                let mut sink = Vec::new();
-                engine.flush_recording(&mut sink);
-                for u in sink {
+                for u in engine.end_of_stream() {
                     send(u);
                 }
                 send(Update::Ended(e.map(|e| e.to_string())));

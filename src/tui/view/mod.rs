@@ -146,7 +146,8 @@ pub fn view(m: &Model, f: &mut Frame) {
 
     match &m.mode {
         Mode::Normal => {}
-        Mode::Help => overlays::draw_help(m, f, area),
+        Mode::Help(page) => overlays::draw_help(m, *page, f, area),
+        Mode::TapDetail => overlays::draw_tap_detail(m, f, area),
         Mode::Label(buf) => overlays::draw_label_entry(buf, f, area),
         Mode::Picker { items, cursor } => overlays::draw_picker(m, items, *cursor, f, area),
         Mode::ConfirmQuit => overlays::draw_confirm(

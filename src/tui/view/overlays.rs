@@ -1,6 +1,7 @@
 //! Boxes drawn over the board: help, label entry, run picker, confirmations.
 
 use super::*;
+use crate::tui::keys::{WORDS_BOARD, WORDS_CURVE, WORKFLOW};
 use crate::tui::model::{KEYS, Model, SAFETY};
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
@@ -19,11 +20,31 @@ pub(super) fn centered(area: Rect, w: u16, h: u16) -> Rect {
     )
 }
 
-pub(super) fn draw_help(m: &Model, f: &mut Frame, area: Rect) {
+/// Titles of the help pages (`keys::HELP_PAGES` of them).
+const HELP_TITLES: [&str; crate::tui::keys::HELP_PAGES] = [
+    "keys",
+    "words on the curve and modes",
+    "words on the status line, taps, comparison",
+    "how a bench session goes",
+];
+
+pub(super) fn draw_help(m: &Model, page: usize, f: &mut Frame, area: Rect) {
+    let page = page.min(HELP_TITLES.len() - 1);
     let r = centered(area, 78, 24);
     f.render_widget(Clear, r);
-    let block = panel(Line::from(Span::styled(" Help: keys and safety ", bold())))
-        .title_bottom(Line::from(" any key closes ").right_aligned());
+    let title = format!(
+        " Help {}/{}: {} ",
+        page + 1,
+        HELP_TITLES.len(),
+        HELP_TITLES[page]
+    );
+    let bottom = if page + 1 < HELP_TITLES.len() {
+        " ? next page, Left back, any other key closes "
+    } else {
+        " Left back, any other key closes "
+    };
+    let block = panel(Line::from(Span::styled(title, bold())))
+        .title_bottom(Line::from(bottom).right_aligned());
     let inner = block.inner(r);
     f.render_widget(block, r);
     let safety_lines: Vec<Line> =
@@ -35,15 +56,31 @@ pub(super) fn draw_help(m: &Model, f: &mut Frame, area: Rect) {
         .iter()
         .map(|s| (s.len() + 12).div_ceil(w) as u16)
         .sum::<u16>();
-    let [keys_area, safety_area] =
+    let [top, safety_area] =
         Layout::vertical([Constraint::Min(4), Constraint::Length(safety_h)]).areas(inner);
+    match page {
+        0 => draw_key_columns(m, f, top),
+        1 => draw_words(WORDS_CURVE, f, top),
+        2 => draw_words(WORDS_BOARD, f, top),
+        _ => {
+            let lines: Vec<Line> = WORKFLOW.iter().map(|l| Line::from(*l)).collect();
+            f.render_widget(Paragraph::new(lines), top);
+        }
+    }
+    f.render_widget(
+        Paragraph::new(safety_lines).wrap(Wrap { trim: true }),
+        safety_area,
+    );
+}
+
+fn draw_key_columns(m: &Model, f: &mut Frame, area: Rect) {
     let keys: Vec<&(&str, crate::tui::model::Action, &str)> = KEYS
         .iter()
         .filter(|k| m.header.demo || !k.2.contains("(demo)"))
         .collect();
     let half = keys.len().div_ceil(2);
-    let [c1, c2] = Layout::horizontal([Constraint::Percentage(50), Constraint::Percentage(50)])
-        .areas(keys_area);
+    let [c1, c2] =
+        Layout::horizontal([Constraint::Percentage(50), Constraint::Percentage(50)]).areas(area);
     for (col, part) in [(c1, &keys[..half]), (c2, &keys[half..])] {
         let lines: Vec<Line> = part
             .iter()
@@ -56,10 +93,81 @@ pub(super) fn draw_help(m: &Model, f: &mut Frame, area: Rect) {
             .collect();
         f.render_widget(Paragraph::new(lines), col);
     }
-    f.render_widget(
-        Paragraph::new(safety_lines).wrap(Wrap { trim: true }),
-        safety_area,
-    );
+}
+
+fn draw_words(words: &[(&str, &str)], f: &mut Frame, area: Rect) {
+    let lines: Vec<Line> = words
+        .iter()
+        .map(|(term, meaning)| {
+            Line::from(vec![
+                Span::styled(format!("{term:>12}  "), bold()),
+                Span::raw(*meaning),
+            ])
+        })
+        .collect();
+    f.render_widget(Paragraph::new(lines), area);
+}
+
+/// The selected tap in full: what the list and the tap panel may have to cut.
+pub(super) fn draw_tap_detail(m: &Model, f: &mut Frame, area: Rect) {
+    let Some(a) = m.analysis.as_ref() else {
+        return;
+    };
+    let Some(i) = m.selected.filter(|&i| i < a.hits.len()) else {
+        return;
+    };
+    let h = &a.hits[i];
+    let fs = m.header.sample_rate;
+    let unit = |c: Option<usize>| {
+        c.and_then(|c| m.header.channels.get(c))
+            .map_or(String::new(), |c| c.unit.clone())
+    };
+    let mut lines = vec![Line::from(format!(
+        "trigger at {:.2} s into the stream",
+        h.trigger_sample as f64 / fs
+    ))];
+    if let Some(pf) = h.peak_force {
+        lines.push(Line::from(format!(
+            "peak force {} {}",
+            fmt_sig(pf),
+            unit(m.header.roles.force)
+        )));
+    }
+    lines.push(Line::from(format!(
+        "peak response {} {}, left at the record end {:.1} % of it",
+        fmt_sig(h.peak_response),
+        unit(Some(m.header.roles.response)),
+        100.0 * h.residual
+    )));
+    lines.push(Line::from(""));
+    lines.push(Line::from(Span::styled("why:", bold())));
+    lines.push(Line::from(Span::styled(
+        h.reason.clone(),
+        Style::default().fg(verdict_mark(h.verdict).1),
+    )));
+    if a.traces.get(i).is_some_and(|t| t.is_none()) {
+        lines.push(Line::from(Span::styled(
+            "no record kept for this tap: it cannot be kept",
+            dim(),
+        )));
+    }
+    // As tall as the text (the reason wrapped at the box's width), within the screen.
+    let reason_rows = h.reason.chars().count().div_ceil(68).max(1);
+    let r = centered(area, 72, (lines.len() + reason_rows + 1) as u16);
+    f.render_widget(Clear, r);
+    let block = panel(Line::from(vec![
+        Span::styled(format!(" Tap #{} of {} ", h.number, a.hits.len()), bold()),
+        verdict_span(h.verdict),
+        Span::raw(if h.by_operator {
+            " (your decision) "
+        } else {
+            " "
+        }),
+    ]))
+    .title_bottom(Line::from(" y keep  x drop  Up/Down other taps  Esc closes ").right_aligned());
+    let inner = block.inner(r);
+    f.render_widget(block, r);
+    f.render_widget(Paragraph::new(lines).wrap(Wrap { trim: true }), inner);
 }
 
 pub(super) fn draw_label_entry(buf: &str, f: &mut Frame, area: Rect) {

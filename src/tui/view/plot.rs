@@ -74,7 +74,7 @@ pub(super) fn nearest(freqs: &[f64], f: f64) -> Option<usize> {
     )
 }
 
-pub(super) fn curve_title(m: &Model, c: Option<&CurveSnap>) -> Line<'static> {
+pub(super) fn curve_title(m: &Model, c: Option<&CurveSnap>, room: usize) -> Line<'static> {
     let basis = c.map_or(m.basis, |c| c.basis);
     let unit = c.map_or(String::new(), |c| format!("dB re 1 {}, ", c.unit));
     let n = m.analysis.as_ref().map_or(0, |a| a.accepted);
@@ -93,15 +93,19 @@ pub(super) fn curve_title(m: &Model, c: Option<&CurveSnap>) -> Line<'static> {
         Span::styled(format!(" {} ", basis.label()), bold()),
         Span::raw(format!("{unit}{n} taps averaged ")),
     ];
-    if !others.is_empty() {
-        spans.push(Span::styled(format!("(v: {}) ", others.join(", ")), dim()));
+    // The hint to the other views only where it fits whole (the help has the v key).
+    let hint = format!("(v: {}) ", others.join(", "));
+    let used: usize = spans.iter().map(|s| s.content.chars().count()).sum();
+    if !others.is_empty() && used + hint.len() <= room {
+        spans.push(Span::styled(hint, dim()));
     }
     Line::from(spans)
 }
 
 pub(super) fn draw_curve(m: &Model, f: &mut Frame, area: Rect) {
     let curve = m.analysis.as_ref().and_then(|a| a.curve.as_ref());
-    let block = panel(curve_title(m, curve));
+    let room = area.width.saturating_sub(2) as usize;
+    let block = panel(curve_title(m, curve, room));
     let inner = block.inner(area);
     f.render_widget(block, area);
     f.render_widget(CurvePlot::of(m), inner);
@@ -318,20 +322,32 @@ impl Widget for CurvePlot<'_> {
         if let Some(c) = curve
             && let Some(i) = nearest(&c.freqs, cursor)
         {
-            spans.push(Span::raw(format!(
-                "  {:.1} dB ({} {})",
+            let mut parts = vec![format!(
+                "{:.1} dB ({} {})",
                 c.db[i],
                 fmt_sig(c.magnitude[i]),
                 c.unit
-            )));
+            )];
             if let Some(coh) = &c.coherence {
-                spans.push(Span::raw(format!("  coh {:.3}", coh[i])));
+                parts.push(format!("coh {:.3}", coh[i]));
+            }
+            // Two blanks between the values where they fit, one where they would not.
+            let wide: usize = parts.iter().map(|p| p.chars().count() + 2).sum();
+            let gap = if spans[0].content.chars().count() + wide <= readout.width as usize {
+                "  "
+            } else {
+                " "
+            };
+            for p in parts {
+                spans.push(Span::raw(format!("{gap}{p}")));
             }
         }
-        spans.push(Span::styled(
-            format!("  view {}-{} Hz", fmt_hz(lo), fmt_hz(hi)),
-            dim(),
-        ));
+        // The visible range is the first thing to go on a narrow plot (the axis shows it).
+        let view = format!("  view {}-{} Hz", fmt_hz(lo), fmt_hz(hi));
+        let used: usize = spans.iter().map(|s| s.content.chars().count()).sum();
+        if used + view.len() <= readout.width as usize {
+            spans.push(Span::styled(view, dim()));
+        }
         Paragraph::new(Line::from(spans)).render(readout, buf);
 
         if legend_h > 0 {

@@ -2,7 +2,7 @@
 
 use super::status::level_text;
 use super::*;
-use crate::tui::engine::{Envelope, HitView};
+use crate::tui::engine::{Envelope, HitTraces};
 use crate::tui::model::Model;
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
@@ -25,8 +25,19 @@ pub(super) fn draw_signal(m: &Model, f: &mut Frame, area: Rect) {
         Some(t) => format!(" trig +-{} {unit} ({}) ", fmt_sig(t), level_text(m)),
         None => " trig: measuring noise ".into(),
     };
+    // Narrow panels keep the trigger level whole: tighter spacing first, then without
+    // the panel's name.
+    let room = area.width.saturating_sub(2) as usize;
+    let n = trig.chars().count();
+    let (name, trig) = if n + 7 <= room {
+        (" Signal", trig)
+    } else if n + 5 <= room {
+        (" Signal", trig.trim_end().to_string())
+    } else {
+        ("", trig)
+    };
     let title = Line::from(vec![
-        Span::styled(" Signal ", bold()),
+        Span::styled(name, bold()),
         Span::styled(trig, Style::default().fg(TRIGGER)),
     ]);
     let block = panel(title);
@@ -111,20 +122,34 @@ pub(super) fn draw_envelope(
     f.render_widget(canvas, area);
 }
 
+/// The selected tap (the latest while the list follows): its verdict, reason and traces.
 pub(super) fn draw_last_tap(m: &Model, f: &mut Frame, area: Rect) {
-    let hit = m.analysis.as_ref().and_then(|a| a.last_hit.as_ref());
-    let title = match hit {
-        Some(h) => Line::from(vec![
-            Span::styled(format!(" Last tap #{} ", h.number), bold()),
-            verdict_span(h.verdict),
-            Span::raw(" "),
-        ]),
+    let a = m.analysis.as_ref();
+    let hits = a.map_or(&[][..], |a| &a.hits[..]);
+    let sel = hits
+        .len()
+        .checked_sub(1)
+        .map(|last| m.selected.unwrap_or(last).min(last));
+    let title = match sel {
+        Some(i) => {
+            let latest = i + 1 == hits.len();
+            let name = if latest {
+                format!(" Last tap #{} ", hits[i].number)
+            } else {
+                format!(" Tap #{} of {} ", hits[i].number, hits.len())
+            };
+            Line::from(vec![
+                Span::styled(name, bold()),
+                verdict_span(hits[i].verdict),
+                Span::raw(" "),
+            ])
+        }
         None => Line::from(Span::styled(" Last tap ", bold())),
     };
     let block = panel(title);
     let inner = block.inner(area);
     f.render_widget(block, area);
-    let Some(h) = hit else {
+    let (Some(i), Some(a)) = (sel, a) else {
         let hint = if m.header.demo {
             "no tap yet: press Space for a simulated tap"
         } else {
@@ -133,28 +158,52 @@ pub(super) fn draw_last_tap(m: &Model, f: &mut Frame, area: Rect) {
         f.render_widget(Paragraph::new(hint).wrap(Wrap { trim: true }), inner);
         return;
     };
+    let h = &hits[i];
     let [text, plots] = Layout::vertical([Constraint::Length(2), Constraint::Min(1)]).areas(inner);
-    let peak = match (h.peak_force, &h.force_unit) {
-        (Some(pf), u) => format!("peak {} {u}, ", fmt_sig(pf)),
-        _ => String::new(),
+    let unit = |c: Option<usize>| {
+        c.and_then(|c| m.header.channels.get(c))
+            .map_or(String::new(), |c| c.unit.clone())
     };
+    let (force_unit, response_unit) = (
+        unit(m.header.roles.force),
+        unit(Some(m.header.roles.response)),
+    );
+    let peak = match h.peak_force {
+        Some(pf) => format!("peak {} {force_unit}, ", fmt_sig(pf)),
+        None => String::new(),
+    };
+    let head = format!(
+        "{peak}response {} {response_unit}: ",
+        fmt_sig(h.peak_response)
+    );
+    // Two rows of text: a longer reason is cut with a pointer to the whole of it.
+    let room = 2 * text.width as usize;
+    let mut reason = h.reason.clone();
+    if head.chars().count() + reason.chars().count() > room {
+        let keep = room.saturating_sub(head.chars().count() + 16);
+        reason = reason.chars().take(keep).collect::<String>() + "... (Enter: all)";
+    }
     let info = Line::from(vec![
-        Span::raw(peak),
-        Span::raw(format!(
-            "response {} {}: ",
-            fmt_sig(h.peak_response),
-            h.response_unit
-        )),
-        Span::styled(
-            h.reason.clone(),
-            Style::default().fg(verdict_mark(h.verdict).1),
-        ),
+        Span::raw(head),
+        Span::styled(reason, Style::default().fg(verdict_mark(h.verdict).1)),
     ]);
-    f.render_widget(Paragraph::new(info).wrap(Wrap { trim: true }), text);
-    draw_hit_plots(h, f, plots);
+    f.render_widget(Paragraph::new(info).wrap(Wrap { trim: false }), text);
+    match a.traces.get(i).and_then(|t| t.as_deref()) {
+        Some(t) => draw_hit_plots(t, &force_unit, &response_unit, f, plots),
+        None => f.render_widget(
+            Paragraph::new("no record kept for this tap").style(dim()),
+            plots,
+        ),
+    }
 }
 
-pub(super) fn draw_hit_plots(h: &HitView, f: &mut Frame, area: Rect) {
+pub(super) fn draw_hit_plots(
+    h: &HitTraces,
+    force_unit: &str,
+    response_unit: &str,
+    f: &mut Frame,
+    area: Rect,
+) {
     match &h.force {
         Some(force) => {
             let [a, b] =
@@ -166,7 +215,7 @@ pub(super) fn draw_hit_plots(h: &HitView, f: &mut Frame, area: Rect) {
                 a,
                 force,
                 None,
-                &format!("F {} {:.0}ms", h.force_unit, 1000.0 * force.span_s),
+                &format!("F {} {:.0}ms", force_unit, 1000.0 * force.span_s),
                 mark,
             );
             draw_envelope(
@@ -174,7 +223,7 @@ pub(super) fn draw_hit_plots(h: &HitView, f: &mut Frame, area: Rect) {
                 b,
                 &h.response,
                 None,
-                &format!("resp {} {:.1}s", h.response_unit, h.response.span_s),
+                &format!("resp {} {:.1}s", response_unit, h.response.span_s),
                 None,
             );
         }
@@ -183,7 +232,7 @@ pub(super) fn draw_hit_plots(h: &HitView, f: &mut Frame, area: Rect) {
             area,
             &h.response,
             None,
-            &format!("response {}, {:.1} s", h.response_unit, h.response.span_s),
+            &format!("response {}, {:.1} s", response_unit, h.response.span_s),
             None,
         ),
     }

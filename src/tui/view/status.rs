@@ -4,11 +4,28 @@ use super::*;
 use crate::hits::TriggerLevel;
 use crate::tui::model::Model;
 use ratatui::Frame;
-use ratatui::layout::Rect;
-use ratatui::style::{Color, Modifier};
+use ratatui::layout::{Constraint, Layout, Rect};
+use ratatui::style::{Color, Modifier, Style};
 use ratatui::text::{Line, Span};
 use ratatui::widgets::Paragraph;
 
+fn width(spans: &[Span]) -> usize {
+    spans.iter().map(|s| s.content.chars().count()).sum()
+}
+
+/// Cut `text` to `room` characters, marking the cut with "~".
+fn cut(text: &str, room: usize) -> String {
+    if text.chars().count() <= room {
+        text.to_string()
+    } else if room == 0 {
+        String::new()
+    } else {
+        text.chars().take(room - 1).collect::<String>() + "~"
+    }
+}
+
+/// The status line: trigger and recording state, taps, save state, link health, rate,
+/// label, source; what gives way on narrow screens is said below.
 pub(super) fn draw_status(m: &Model, f: &mut Frame, area: Rect) {
     let (acc, total) = m.counts();
     let live = m.live.as_ref();
@@ -17,15 +34,20 @@ pub(super) fn draw_status(m: &Model, f: &mut Frame, area: Rect) {
         .map_or(0, |c| c.packets_lost + c.packets_corrupt);
     let overrun = live.map_or(0, |l| l.overrun_frames);
     let armed = live.map_or(m.armed, |l| l.armed);
-    let mut spans = vec![Span::styled(
-        " tapmodes ",
-        bold().add_modifier(Modifier::REVERSED),
-    )];
-    spans.push(if armed {
+    let mut spans = vec![if m.ended.is_some() {
+        Span::styled(" SOURCE STOPPED ", bold().fg(Color::Red))
+    } else if armed {
         Span::styled(" ARMED ", bold().fg(Color::Green))
     } else {
         Span::styled(" DISARMED ", bold().fg(Color::Red))
-    });
+    }];
+    if let Some(p) = live.and_then(|l| l.recording).filter(|_| m.ended.is_none()) {
+        spans.push(Span::styled(
+            format!("RECORDING {:>3.0} % ", 100.0 * p),
+            bold().fg(Color::Yellow).add_modifier(Modifier::REVERSED),
+        ));
+        spans.push(Span::raw(" "));
+    }
     spans.push(Span::raw(format!("taps {acc}/{total} kept | ")));
     if m.unsaved() {
         spans.push(Span::styled("UNSAVED", bold().fg(Color::Red)));
@@ -34,68 +56,124 @@ pub(super) fn draw_status(m: &Model, f: &mut Frame, area: Rect) {
     } else {
         spans.push(Span::raw("nothing to save"));
     }
-    spans.push(Span::raw(format!(
-        " | lost {lost} pkt, overrun {overrun} | {:.0} Hz | '{}'",
-        m.header.sample_rate, m.label
-    )));
+    let health = if lost > 0 || overrun > 0 {
+        bold().fg(Color::Red)
+    } else {
+        Style::default()
+    };
+    spans.push(Span::raw(" | "));
+    spans.push(Span::styled(
+        format!("lost {lost} pkt, overrun {overrun}"),
+        health,
+    ));
+    let rate = Span::raw(format!(" | {:.0} Hz", m.header.sample_rate));
+    let mut tail = vec![Span::raw(format!(" | '{}'", m.label))];
     if m.header.demo && m.auto_tap_on {
-        spans.push(Span::raw(format!(
+        tail.push(Span::raw(format!(
             " | auto-tap {:.1} s",
             m.auto_tap_s.unwrap_or(0.0)
         )));
     }
-    spans.push(Span::styled(format!(" | {}", m.header.source), dim()));
+    let room = area.width as usize;
+    let badge = Span::styled(" tapmodes ", bold().add_modifier(Modifier::REVERSED));
+    let source = format!(" | {}", m.header.source);
+    // Narrow screens give up, in order: the name badge, the end of the source (cut text
+    // is marked "~"), the sample rate, the rest of the source; the label is cut last
+    // (marked "~"). The states and counters always stay.
+    let fixed = width(&spans) + width(&tail);
+    if fixed + rate.content.len() + 6 <= room {
+        if fixed + rate.content.len() + badge.content.len() + source.chars().count() <= room {
+            spans.insert(0, badge);
+        }
+        spans.push(rate);
+        spans.extend(tail);
+        let left = room.saturating_sub(width(&spans));
+        spans.push(Span::styled(cut(&source, left), dim()));
+    } else if fixed + 6 <= room {
+        spans.extend(tail);
+        let left = room.saturating_sub(width(&spans));
+        spans.push(Span::styled(cut(&source, left), dim()));
+    } else {
+        let before = width(&spans);
+        let label_room = room.saturating_sub(before);
+        let joined: String = tail.iter().map(|s| s.content.as_ref()).collect();
+        spans.push(Span::raw(cut(&joined, label_room)));
+    }
     f.render_widget(Paragraph::new(Line::from(spans)), area);
 }
 
+/// The keys that must stay visible whatever the width (right-aligned).
+const ALWAYS: [(&str, &str); 4] = [("s", "save"), ("p", "runs"), ("q", "quit"), ("?", "help")];
+
+fn key_spans(keys: &[(&str, &str)]) -> Vec<Span<'static>> {
+    let mut v = Vec::new();
+    for (i, (k, what)) in keys.iter().enumerate() {
+        if i > 0 {
+            v.push(Span::raw("  "));
+        }
+        v.push(Span::styled(k.to_string(), bold()));
+        v.push(Span::raw(format!(" {what}")));
+    }
+    v
+}
+
+/// The bottom line: a message or the most useful keys on the left, the keys for save,
+/// saved runs, quit and help always on the right.
 pub(super) fn draw_hints(m: &Model, f: &mut Frame, area: Rect) {
+    let right = key_spans(&ALWAYS);
+    let right_w = width(&right) as u16 + 1;
+    let [left_area, right_area] =
+        Layout::horizontal([Constraint::Min(0), Constraint::Length(right_w)]).areas(area);
+    let room = left_area.width as usize;
     let line = if let Some(n) = &m.notice {
         Line::from(vec![
             Span::styled("> ", bold()),
-            Span::styled(n.clone(), bold()),
+            Span::styled(cut(n, room.saturating_sub(3)), bold()),
         ])
     } else if let Some(e) = &m.ended {
         Line::from(Span::styled(
-            format!("> source stopped: {e} (s saves, q quits)"),
+            cut(&format!("> source stopped: {e}"), room.saturating_sub(1)),
             bold().fg(Color::Red),
         ))
     } else {
-        let mut v = vec![Span::styled("? help", bold())];
+        // Most useful first; as many as fit.
         let keys: &[(&str, &str)] = if m.header.demo {
             &[
                 ("Space", "tap"),
+                ("y/x", "keep/drop"),
+                ("Enter", "read tap"),
+                ("l", "label"),
+                ("n", "next run"),
+                ("v", "view"),
                 ("a", "arm"),
                 ("+/-", "level"),
-                ("y/x", "keep/drop"),
                 ("e", "H1/H2"),
-                ("v", "view"),
                 ("i/o", "zoom"),
-                ("s", "save"),
-                ("p", "runs"),
-                ("q", "quit"),
             ]
         } else {
             &[
+                ("y/x", "keep/drop"),
+                ("Enter", "read tap"),
+                ("l", "label"),
+                ("n", "next run"),
                 ("a", "arm"),
                 ("+/-", "level"),
-                ("y/x", "keep/drop"),
-                ("e", "H1/H2"),
                 ("v", "view"),
+                ("e", "H1/H2"),
                 ("i/o", "zoom"),
-                ("l", "label"),
-                ("s", "save"),
-                ("p", "runs"),
-                ("q", "quit"),
             ]
         };
-        for (k, what) in keys {
-            v.push(Span::raw("  "));
-            v.push(Span::styled(*k, bold()));
-            v.push(Span::raw(format!(" {what}")));
+        let mut n = keys.len();
+        while n > 0 && width(&key_spans(&keys[..n])) >= room {
+            n -= 1;
         }
-        Line::from(v)
+        Line::from(key_spans(&keys[..n]))
     };
-    f.render_widget(Paragraph::new(line), area);
+    f.render_widget(Paragraph::new(line), left_area);
+    f.render_widget(
+        Paragraph::new(Line::from(right)).right_aligned(),
+        right_area,
+    );
 }
 
 pub(super) fn level_text(m: &Model) -> String {

@@ -106,10 +106,15 @@ pub(super) fn draw_modes(m: &Model, f: &mut Frame, area: Rect) {
     let inner = block.inner(area);
     f.render_widget(block, area);
     if modes.is_empty() {
-        f.render_widget(
-            Paragraph::new("no modes yet (they need accepted taps)").style(dim()),
-            inner,
-        );
+        let said = if a.is_some_and(|a| a.accepted > 0) {
+            "no peak passed the mode tests (the run file's notes say why)"
+        } else {
+            "no modes yet (they need accepted taps)"
+        };
+        // A soft mount is shown whether or not the curve has modes.
+        let mut lines = vec![Line::from(Span::styled(said, dim()))];
+        lines.extend(a.map_or_else(Vec::new, |a| crate::tui::drive_view::mount_lines(a)));
+        f.render_widget(Paragraph::new(lines).wrap(Wrap { trim: false }), inner);
         return;
     }
     let wide = inner.width >= 56;
@@ -183,24 +188,41 @@ pub(super) fn draw_modes(m: &Model, f: &mut Frame, area: Rect) {
     head.push("flags");
     let header = Row::new(head).style(bold());
     let mount = a.map_or_else(Vec::new, |a| crate::tui::drive_view::mount_lines(a));
-    let mount_h = (mount.len() as u16).min(inner.height.saturating_sub(3));
-    let legend_h = u16::from(!wide && inner.height as usize > modes.len() + 2 + mount.len());
-    let [t, mt, l] = Layout::vertical([
+    // In the transmissibility view the mount comes first: the table keeps its header and
+    // one row; elsewhere the table keeps three rows.
+    let trans = a.is_some_and(|a| a.basis == crate::spectra::Basis::Transmissibility);
+    let table_min = if trans { 2 } else { 3 };
+    let mount_h = (mount.len() as u16).min(inner.height.saturating_sub(table_min));
+    // On narrow panels the flags are letters: name the ones shown (the help names all).
+    let mut shown: Vec<crate::modes::Flag> = modes.iter().flat_map(|md| md.flags.clone()).collect();
+    shown.sort_by_key(|f| f.short());
+    shown.dedup();
+    let legend = shown
+        .iter()
+        .map(|f| format!("{} {}", f.short(), f.label()))
+        .collect::<Vec<_>>()
+        .join(", ");
+    let legend_h = u16::from(
+        !wide && !shown.is_empty() && inner.height as usize > modes.len() + 2 + mount.len(),
+    );
+    let [mut t, mut mt, l] = Layout::vertical([
         Constraint::Min(2),
         Constraint::Length(mount_h),
         Constraint::Length(legend_h),
     ])
     .areas(inner);
+    if trans {
+        // Mount above the table.
+        let [top, rest] =
+            Layout::vertical([Constraint::Length(mount_h), Constraint::Min(2)]).areas(t.union(mt));
+        (mt, t) = (top, rest);
+    }
     f.render_widget(Table::new(rows, widths).header(header), t);
     if mount_h > 0 {
         f.render_widget(Paragraph::new(mount).wrap(Wrap { trim: false }), mt);
     }
     if legend_h > 0 {
-        f.render_widget(
-            Paragraph::new("L few lines O overlap C low coh H no half-power W window F fit only")
-                .style(dim()),
-            l,
-        );
+        f.render_widget(Paragraph::new(legend).style(dim()), l);
     }
 }
 
