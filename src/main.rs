@@ -39,7 +39,8 @@ fn main() {
         libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
     if let Err(e) = run() {
-        eprintln!("tapmodes: {e}");
+        // Stderr may be gone (a hung-up terminal): exit 1 all the same, without a panic.
+        let _ = std::io::Write::write_fmt(&mut std::io::stderr(), format_args!("tapmodes: {e}\n"));
         std::process::exit(1);
     }
 }

@@ -57,6 +57,9 @@ pub struct AnalyzeArgs {
 /// Open a WAV with the channel options applied (scales, units, names).
 pub fn open_wav(path: &Path, ch: &ChannelArgs, choice: &RoleChoice) -> Result<WavSource> {
     let mut src = WavSource::open(path)?;
+    if let Some(n) = src.note() {
+        eprintln!("{}", validate::clean_text(&n, false));
+    }
     let roles = choice.resolve(src.info())?;
     if let (Some(f), Some(scale)) = (roles.force, ch.force_scale) {
         src.calibrate(f, ch.force_unit.as_deref().unwrap_or("N"), scale);

@@ -19,6 +19,9 @@ pub fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crat
         .wav_path(json)
         .ok_or_else(|| Error::new(format!("'{shown}' does not name a recording")))??;
     let mut src = WavSource::open(&wav)?;
+    if let Some(n) = src.note() {
+        eprintln!("{}", crate::run::validate::clean_text(&n, false));
+    }
     let s = &saved.setup;
     let (n_run, n_wav) = (s.channels.len(), src.info().channels.len());
     if n_run != n_wav {

@@ -34,6 +34,11 @@ pub struct WavSource {
     gaps: Vec<(u64, u64)>,
     /// Optional real-time pacing: the wall-clock start and the rate to keep.
     pace: Option<std::time::Instant>,
+    /// Frames read past the header's count (a recording cut off before its header was
+    /// updated, see `wav_header`).
+    past_header: u64,
+    /// Frames the header counts.
+    header_frames: u64,
 }
 
 impl WavSource {
@@ -94,6 +99,26 @@ impl WavSource {
             block: WAV_BLOCK,
             gaps: Vec::new(),
             pace: None,
+            past_header: h.past_header,
+            header_frames: h.frames - h.past_header,
+        })
+    }
+
+    /// Frames read past the count the header gives: more than 0 for a recording cut off
+    /// before its header was last updated (a killed capture), read to the end of the file.
+    pub fn past_header(&self) -> u64 {
+        self.past_header
+    }
+
+    /// One sentence for the operator when the file was read past its header's count.
+    pub fn note(&self) -> Option<String> {
+        (self.past_header > 0).then(|| {
+            format!(
+                "note: the header of '{}' counts {} frames but the file holds {} more after them (a recording cut off before its header was last updated, e.g. a killed capture); they are read too",
+                self.name,
+                self.header_frames,
+                self.past_header,
+            )
         })
     }
 

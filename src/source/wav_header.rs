@@ -4,7 +4,15 @@
 //! bytes are the tag; Microsoft WAVEFORMATEXTENSIBLE documentation, from memory).
 //!
 //! Every size is checked against the file before anything is allocated, and the rate and
-//! channel count go through [`crate::run::validate`]. Samples narrower than their container
+//! channel count go through [`crate::run::validate`].
+//!
+//! A recording cut off before its header was last brought up to date (a capture killed with
+//! SIGKILL or by a power cut: the header counts what was there at the last flush, the file
+//! holds more) is read to its end: when a RIFF file's RIFF size ends at or before the end
+//! of its data chunk but the file goes on, and what follows is not a chunk, the data is
+//! taken to run to the end of the file (whole frames; a partial last frame is dropped) and
+//! [`WavHeader::past_header`] says how many frames that added. Chunks after the data that
+//! the RIFF size covers, and a chunk or ID3 tag appended after it, are left alone. Samples narrower than their container
 //! (24 valid bits in 32) are left-justified, as the extensible format specifies: they are
 //! shifted right by the unused bits.
 
@@ -78,6 +86,9 @@ pub struct WavHeader {
     pub data_offset: u64,
     /// Whole frames in the data chunk.
     pub frames: u64,
+    /// Frames read past the count the header gives (a recording cut off before its
+    /// header was updated; see the module notes); 0 for a complete file.
+    pub past_header: u64,
 }
 
 /// tag, channels, rate, block align, bits, (valid bits, sub-format tag) of extensible.
@@ -174,12 +185,25 @@ pub fn read_header<R: Read + Seek>(r: &mut R, file_len: u64, name: &str) -> Resu
                 if body.saturating_add(size) > file_len {
                     return Err(trunc());
                 }
+                let declared = size / frame_bytes as u64;
+                let riff_end =
+                    u64::from(u32::from_le_bytes([head[4], head[5], head[6], head[7]])) + 8;
+                let data_end = body + size;
+                if !is64
+                    && riff_end <= data_end
+                    && file_len - data_end > (size & 1)
+                    && !chunk_at(r, data_end, file_len)
+                {
+                    size = file_len - body;
+                }
+                let frames = size / frame_bytes as u64;
                 return Ok(WavHeader {
                     channels: n,
                     sample_rate: f64::from(rate),
                     kind,
                     data_offset: body,
-                    frames: size / frame_bytes as u64,
+                    frames,
+                    past_header: frames - declared,
                 });
             }
             _ => {}
@@ -229,6 +253,23 @@ fn sample_kind(tag: u16, bits: u16, ext: Option<(u16, u16)>, name: &str) -> Resu
     }
 }
 
+/// Whether the bytes at `pos` begin a chunk (four letters, digits, blanks or `_` and a size
+/// that fits in the file) or an ID3 tag, rather than more samples.
+fn chunk_at<R: Read + Seek>(r: &mut R, pos: u64, file_len: u64) -> bool {
+    let mut b = [0u8; 8];
+    if r.seek(SeekFrom::Start(pos)).is_err() || read_exact(r, &mut b).is_err() {
+        return false;
+    }
+    if &b[..3] == b"ID3" {
+        return true;
+    }
+    let size = u64::from(u32::from_le_bytes([b[4], b[5], b[6], b[7]]));
+    b[..4]
+        .iter()
+        .all(|&c| c.is_ascii_alphanumeric() || c == b' ' || c == b'_')
+        && pos + 8 + size <= file_len
+}
+
 fn read_exact<R: Read>(r: &mut R, buf: &mut [u8]) -> std::io::Result<()> {
     r.read_exact(buf)
 }
@@ -254,5 +295,76 @@ mod tests {
             valid: 24,
         };
         assert_eq!(k24.decode(&[0xff, 0xff, 0xff]), -1.0);
+    }
+}
+
+#[cfg(test)]
+mod cut_off_tests {
+    use super::*;
+
+    /// A 16-bit stereo WAV at 1 kHz whose header says `riff` and `data` bytes, followed by
+    /// `samples` bytes of samples and then `tail`.
+    fn wav(riff: u32, data: u32, samples: usize, tail: &[u8]) -> Vec<u8> {
+        let mut v = b"RIFF".to_vec();
+        v.extend(riff.to_le_bytes());
+        v.extend(b"WAVEfmt ");
+        v.extend(16u32.to_le_bytes());
+        v.extend(1u16.to_le_bytes()); // PCM
+        v.extend(2u16.to_le_bytes());
+        v.extend(1000u32.to_le_bytes());
+        v.extend(4000u32.to_le_bytes());
+        v.extend(4u16.to_le_bytes());
+        v.extend(16u16.to_le_bytes());
+        v.extend(b"data");
+        v.extend(data.to_le_bytes());
+        // Quiet samples: small values, high bytes 0x00 or 0xff (never a chunk name).
+        v.extend((0..samples).map(|i| if i % 2 == 0 { (i % 7) as u8 } else { 0 }));
+        v.extend(tail);
+        v
+    }
+
+    fn header(b: &[u8]) -> WavHeader {
+        read_header(&mut std::io::Cursor::new(b), b.len() as u64, "t").unwrap()
+    }
+
+    #[test]
+    fn a_recording_cut_off_before_its_header_was_updated_is_read_to_its_end() {
+        // Killed before the first flush: the header still says 0 (as the writer left it).
+        let h = header(&wav(0, 0, 4000, &[]));
+        assert_eq!((h.frames, h.past_header), (1000, 1000));
+        // Killed after a flush at 400 frames; a partial frame at the end is dropped.
+        let h = header(&wav(36 + 1600, 1600, 4002, &[]));
+        assert_eq!((h.frames, h.past_header), (1000, 600));
+        // Complete file: nothing added.
+        let h = header(&wav(36 + 4000, 4000, 4000, &[]));
+        assert_eq!((h.frames, h.past_header), (1000, 0));
+    }
+
+    #[test]
+    fn chunks_and_tags_after_the_data_are_not_samples() {
+        // A LIST chunk the RIFF size covers.
+        let mut list = b"LIST".to_vec();
+        list.extend(4u32.to_le_bytes());
+        list.extend(b"INFO");
+        let h = header(&wav(36 + 4000 + 12, 4000, 4000, &list));
+        assert_eq!((h.frames, h.past_header), (1000, 0));
+        // The same chunk appended outside the RIFF size.
+        let h = header(&wav(36 + 4000, 4000, 4000, &list));
+        assert_eq!((h.frames, h.past_header), (1000, 0));
+        // An ID3 tag appended.
+        let h = header(&wav(
+            36 + 4000,
+            4000,
+            4000,
+            b"ID3\x03\x00\x00\x00\x00\x00\x10",
+        ));
+        assert_eq!((h.frames, h.past_header), (1000, 0));
+        // The pad byte of an odd-sized data chunk outside the RIFF size.
+        let mut odd = wav(36 + 3, 3, 3, &[0]);
+        odd[22] = 1; // mono 8-bit so that 3 bytes are 3 frames
+        odd[32] = 1;
+        odd[34] = 8;
+        let h = header(&odd);
+        assert_eq!((h.frames, h.past_header), (3, 0));
     }
 }

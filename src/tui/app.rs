@@ -146,6 +146,8 @@ impl App {
             Inbox::Update(u) => self.dispatch(Msg::Update(u)),
             Inbox::Key(k) => self.dispatch(Msg::Key(k)),
             Inbox::Resize => self.dispatch(Msg::Resize),
+            // Only wakes the loop; the caller of `drive` decides how to end.
+            Inbox::Signal => {}
         }
     }
 
@@ -282,16 +284,28 @@ impl App {
     /// Threaded, this returns as soon as the acquisition has stopped: `wait_for_files`
     /// waits for the rest.
     pub fn shutdown(&mut self) {
+        self.end(Cmd::Shutdown);
+    }
+
+    /// Stop the engine when the app is ended from outside (a signal, a lost terminal):
+    /// as `shutdown`, but the run files are written first over everything taken (when the
+    /// run has taps), so the JSON covers exactly what the WAV holds. Unsaved verdicts,
+    /// level or label are kept, as the save-and-quit choice would keep them.
+    pub fn stop_saving(&mut self) {
+        self.end(Cmd::SaveAndShutdown);
+    }
+
+    fn end(&mut self, cmd: Cmd) {
         let seq = self.model.sent_seq + 1;
         match &mut self.link {
             Link::Inline { engine, .. } => {
                 // What closing the files says (a recording removed) reaches the model.
-                for u in engine.command(seq, Cmd::Shutdown) {
+                for u in engine.command(seq, cmd) {
                     self.dispatch(Msg::Update(u));
                 }
             }
             Link::Threaded { cmds, worker } => {
-                let _ = cmds.send((seq, Cmd::Shutdown));
+                let _ = cmds.send((seq, cmd));
                 worker.stop_pump();
             }
         }

@@ -27,6 +27,8 @@ use ratatui::crossterm::terminal::{
 };
 use ratatui::crossterm::{cursor, execute};
 use std::path::PathBuf;
+use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
 
 pub use app::App;
 
@@ -79,10 +81,25 @@ impl Drop for TerminalGuard {
     }
 }
 
-/// Run the app in the terminal until the operator quits.
+/// Run the app in the terminal until the operator quits, or until SIGINT, SIGTERM or
+/// SIGHUP (or a lost terminal) ends it from outside. Either way the terminal is restored
+/// first and the files are finished after; ended from outside, the run files are written
+/// over everything taken (see `App::stop_saving`) and the app exits 0.
 pub fn run(launch: Launch) -> Result<()> {
     let (tx, rx) = std::sync::mpsc::channel::<Inbox>();
+    let signalled = Arc::new(AtomicBool::new(false));
+    {
+        let (flag, tx) = (signalled.clone(), tx.clone());
+        // SIGINT, SIGTERM and SIGHUP (ctrlc's `termination` feature; in raw mode Ctrl-C is
+        // a key, not SIGINT). A second handler cannot be installed in one process (tests);
+        // ignore that.
+        let _ = ctrlc::set_handler(move || {
+            flag.store(true, Ordering::SeqCst);
+            let _ = tx.send(Inbox::Signal);
+        });
+    }
     let mut app = App::threaded(launch, tx.clone())?;
+    let started = std::cell::Cell::new(false);
     let result = (|| {
         let _guard = TerminalGuard::enter()?;
         let backend = CrosstermBackend::new(std::io::stdout());
@@ -103,24 +120,55 @@ pub fn run(launch: Launch) -> Result<()> {
                 }
             }
         });
-        app::drive(&mut app, &mut terminal, &rx, |_, _| false)
+        // Set up: from here a failed loop keeps everything taken.
+        started.set(true);
+        let result = app::drive(&mut app, &mut terminal, &rx, |_, _| {
+            signalled.load(Ordering::SeqCst)
+        });
+        // Dropped with a hidden cursor, ratatui's terminal shows it and prints (`eprintln!`,
+        // which panics when stderr is a hung-up terminal) if that fails: show it here, and
+        // on failure let the terminal go without its drop (the guard restores what can be).
+        if terminal.show_cursor().is_err() {
+            std::mem::forget(terminal);
+        }
+        result
     })();
-    // Also when the terminal could not be set up: the recording is closed (and removed
-    // if no tap landed), never left empty.
-    app.shutdown();
+    let by_signal = signalled.load(Ordering::SeqCst);
+    if (app.model.quit && !by_signal) || !started.get() {
+        // An operator's quit, or a terminal that could not be set up: the recording is
+        // closed (and removed if no tap landed), never left empty.
+        app.shutdown();
+    } else {
+        // Ended from outside, or the loop failed (a terminal that went away): keep
+        // everything taken. After an operator's quit this finds the engine stopped already.
+        app.stop_saving();
+    }
     // The screen is gone at once; files still being written are finished before exit.
+    // Stderr may be gone too (a hung-up terminal): what cannot be said is not an error.
     if app.finishing() {
-        eprintln!("tapmodes: finishing the analysis and the run files...");
+        say("tapmodes: finishing the analysis and the run files...");
     }
     app.wait_for_files();
     // What the file side said after the screen was gone (a failed save, a removed
     // recording) goes to the terminal.
     while let Ok(m) = rx.try_recv() {
         if let Inbox::Update(Update::Problem(p)) = m {
-            eprintln!("tapmodes: {p}");
+            say(&format!("tapmodes: {p}"));
         }
     }
+    if by_signal {
+        say(
+            "tapmodes: stopped by a signal (SIGINT, SIGTERM or SIGHUP); the run files hold everything taken",
+        );
+        return Ok(());
+    }
     result
+}
+
+/// One line on stderr, ignoring failure (a terminal hung up).
+fn say(line: &str) {
+    use std::io::Write;
+    let _ = writeln!(std::io::stderr(), "{line}");
 }
 
 impl Launch {

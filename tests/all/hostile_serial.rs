@@ -3,23 +3,26 @@
 //! count of what the decoder dropped. Fed through the real `SerialSource` over a scripted
 //! byte link, so header validation and mid-run header changes are covered too.
 
+use std::collections::VecDeque;
+use tapmodes::rng::Rng;
 use tapmodes::source::Source;
-use tapmodes::source::serial::codec::{BinaryEncoder, StreamHeader, encode_text_header};
+use tapmodes::source::serial::codec::{
+    BinaryEncoder, SampleWidth, StreamHeader, encode_text_header,
+};
 use tapmodes::source::serial::{ByteLink, SerialSource};
 
 /// Hands out `chunks` one read at a time, then reports the device gone.
-struct Script(Vec<Vec<u8>>);
+struct Script(VecDeque<Vec<u8>>);
 
 impl ByteLink for Script {
     fn read_some(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
-        if self.0.is_empty() {
+        let Some(c) = self.0.pop_front() else {
             return Err(std::io::Error::new(std::io::ErrorKind::BrokenPipe, "gone"));
-        }
-        let c = self.0.remove(0);
+        };
         let n = c.len().min(buf.len());
         buf[..n].copy_from_slice(&c[..n]);
         if n < c.len() {
-            self.0.insert(0, c[n..].to_vec());
+            self.0.push_front(c[n..].to_vec());
         }
         Ok(n)
     }
@@ -41,7 +44,7 @@ struct Outcome {
 
 fn feed(chunks: Vec<Vec<u8>>) -> Outcome {
     let mut o = Outcome::default();
-    let mut src = match SerialSource::from_link("test", Box::new(Script(chunks))) {
+    let mut src = match SerialSource::from_link("test", Box::new(Script(chunks.into()))) {
         Ok(s) => s,
         Err(e) => {
             o.error = Some(e.to_string());
@@ -408,4 +411,143 @@ fn long_encoded_header_is_text() {
     ]);
     assert_eq!(o.names.len(), 16, "{o:?}");
     assert_eq!(o.frames, 1);
+}
+
+/// A binary stream whose every frame carries its own device frame number (channel 0 = n,
+/// channel 1 = -n), with frames lost in every way the firmware and the link lose them: the
+/// firmware skipping frames (buffer overflow), whole packets dropped on the wire, a packet
+/// corrupted on the wire, a gap in the very first packets (read with the header) and two
+/// gaps close together. Packets hold 1 to 40 frames, so gaps fall inside reads.
+fn stream_with_gaps() -> (Vec<u8>, u64) {
+    let h = StreamHeader::new(1000.0, &["force", "accel"]);
+    let mut e = BinaryEncoder::with_width(SampleWidth::I32);
+    let mut bytes = e.header(&h);
+    let mut rng = Rng::new(0x9a95);
+    let mut n = 0u32;
+    let packet = |e: &mut BinaryEncoder, n: &mut u32, len: u32| {
+        let f: Vec<Vec<i32>> = (*n..*n + len)
+            .map(|k| vec![k as i32, -(k as i32)])
+            .collect();
+        *n += len;
+        e.samples(&f)
+    };
+    for k in 0..160 {
+        let len = 1 + (rng.next_u64() % 40) as u32;
+        match k {
+            // Lost by the firmware: the counter moves on, nothing is sent.
+            2 | 40 | 41 | 97 => {
+                let skip = 1 + (rng.next_u64() % 300) as u32;
+                e.skip_frames(skip);
+                n += skip;
+            }
+            // Lost on the wire: the packet is made (sequence and counter advance), not sent.
+            60 | 61 | 62 | 130 => {
+                packet(&mut e, &mut n, len);
+                continue;
+            }
+            // Corrupted on the wire: one bit flipped inside the packet.
+            110 => {
+                let mut p = packet(&mut e, &mut n, len);
+                let mid = p.len() / 2;
+                p[mid] ^= 0x10;
+                if p[mid] == 0 {
+                    p[mid] = 0x55;
+                }
+                bytes.extend(p);
+                continue;
+            }
+            _ => {}
+        }
+        bytes.extend(packet(&mut e, &mut n, len));
+    }
+    (bytes, u64::from(n))
+}
+
+/// Frames as (stream position, device frame number) and gaps as (position, length).
+type Placement = (Vec<(u64, f64)>, Vec<(u64, u64)>);
+
+/// What a source delivered, flattened to stream positions: every frame with its position,
+/// and the stretches the blocks' `start`s leave uncovered (the gaps).
+fn placed(chunks: Vec<Vec<u8>>) -> (Placement, Option<String>) {
+    let mut src = SerialSource::from_link("test", Box::new(Script(chunks.into()))).unwrap();
+    let mut frames = Vec::new();
+    let mut gaps = Vec::new();
+    let mut next = 0u64;
+    let error = loop {
+        match src.next_block() {
+            Ok(Some(b)) => {
+                if b.is_empty() {
+                    continue;
+                }
+                assert!(b.start >= next, "block at {} overlaps {next}", b.start);
+                if b.start > next {
+                    gaps.push((next, b.start - next));
+                }
+                for (i, v) in b.channels[0].iter().enumerate() {
+                    assert_eq!(b.channels[1][i], -v);
+                    frames.push((b.start + i as u64, *v));
+                }
+                next = b.start + b.len() as u64;
+            }
+            Ok(None) => break None,
+            Err(e) => break Some(e.to_string()),
+        }
+    };
+    ((frames, gaps), error)
+}
+
+/// Where a gap lands depends on the frame counter only, never on how the bytes were split
+/// into reads: the same stream in reads of 1, 7, 64 and 4097 bytes and in random splits
+/// places every frame at its own frame number and leaves the same gaps.
+#[test]
+fn gaps_placed_by_frame_counter_whatever_the_reads() {
+    let (bytes, total) = stream_with_gaps();
+    let mut splits: Vec<(String, Vec<Vec<u8>>)> = [1usize, 7, 64, 4097]
+        .iter()
+        .map(|&n| {
+            (
+                format!("reads of {n}"),
+                bytes.chunks(n).map(<[u8]>::to_vec).collect(),
+            )
+        })
+        .collect();
+    let mut rng = Rng::new(7);
+    for round in 0..8 {
+        let mut v = Vec::new();
+        let mut rest = &bytes[..];
+        while !rest.is_empty() {
+            let n = (1 + (rng.next_u64() % [3, 50, 700, 9000][round % 4]) as usize).min(rest.len());
+            v.push(rest[..n].to_vec());
+            rest = &rest[n..];
+        }
+        splits.push((format!("random split {round}"), v));
+    }
+    splits.push(("all at once".into(), vec![bytes.clone()]));
+    let mut first: Option<Placement> = None;
+    for (name, chunks) in splits {
+        let ((frames, gaps), error) = placed(chunks);
+        assert!(
+            error.as_deref().is_some_and(|e| e.contains("stopped")),
+            "{name}: {error:?}"
+        );
+        for &(pos, v) in &frames {
+            assert_eq!(pos as f64, v, "{name}: frame {v} placed at {pos}");
+        }
+        let covered = frames.len() as u64 + gaps.iter().map(|g| g.1).sum::<u64>();
+        assert_eq!(covered, total, "{name}: frames plus gaps");
+        match &first {
+            None => {
+                eprintln!(
+                    "serial gaps: {} frames of {total}, gaps {gaps:?}",
+                    frames.len()
+                );
+                assert_eq!(gaps.len(), 7, "{gaps:?}");
+                first = Some((frames, gaps));
+            }
+            Some((f0, g0)) => {
+                assert_eq!(&gaps, g0, "{name}: gaps differ");
+                assert_eq!(&frames, f0, "{name}: frames differ");
+            }
+        }
+    }
 }

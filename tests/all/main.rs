@@ -17,6 +17,7 @@ mod fit_softmount;
 mod fit_uncertainty;
 mod hostile_catalogue;
 mod hostile_fuzz;
+mod hostile_kill;
 mod hostile_outputs;
 mod hostile_serial;
 mod independent_recordings;

@@ -14,7 +14,7 @@ use tapmodes::source::simulator::Simulator;
 use tapmodes::source::simulator::presets::preset;
 
 /// Converter codes of a simulated run, frame by frame, and the header describing them.
-fn device_frames(seconds: f64) -> (StreamHeader, Vec<Vec<i32>>) {
+pub fn device_frames(seconds: f64) -> (StreamHeader, Vec<Vec<i32>>) {
     let plan = preset("tm9-arm-solid", 9).unwrap();
     let header = StreamHeader {
         rate_hz: plan.sample_rate,
@@ -39,7 +39,7 @@ fn device_frames(seconds: f64) -> (StreamHeader, Vec<Vec<i32>>) {
 
 /// Open a pty pair; returns the master and the slave's path (the slave handle is closed
 /// so that the capture can open it exclusively).
-fn pty() -> (serialport::TTYPort, String) {
+pub fn pty() -> (serialport::TTYPort, String) {
     let (master, slave) = serialport::TTYPort::pair().expect("pty pair");
     let name = serialport::SerialPort::name(&slave).expect("slave name");
     drop(slave);

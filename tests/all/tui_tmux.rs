@@ -96,11 +96,12 @@ fn scratch() -> PathBuf {
     crate::common::temp_dir("tui-tmux")
 }
 
-#[test]
-fn demo_runs_saves_and_restores_the_terminal() {
+/// A tmux session running `sh` with the prompt `prompt$ `, or None (with a notice) when
+/// tmux or the app is missing.
+fn start_session(name: &str) -> Option<Session> {
     let Some(tmux) = tmux_path() else {
         println!("NOTICE: tmux is not installed; the end-to-end terminal test is skipped");
-        return;
+        return None;
     };
     let bin = env!("CARGO_BIN_EXE_tapmodes");
     let wired = Command::new(bin)
@@ -112,13 +113,12 @@ fn demo_runs_saves_and_restores_the_terminal() {
             "NOTICE: `tapmodes tui` is not wired into the command line yet; \
              the end-to-end terminal test is skipped"
         );
-        return;
+        return None;
     }
-    let dir = scratch();
     let s = Session {
         tmux,
-        name: "e2e".into(),
-        socket: format!("tapmodes-e2e-{}", std::process::id()),
+        name: name.into(),
+        socket: format!("tapmodes-{name}-{}", std::process::id()),
     };
     let st = s
         .cmd()
@@ -141,6 +141,16 @@ fn demo_runs_saves_and_restores_the_terminal() {
         assert!(st.success());
     }
     s.wait_for(&["prompt$"]);
+    Some(s)
+}
+
+#[test]
+fn demo_runs_saves_and_restores_the_terminal() {
+    let Some(s) = start_session("e2e") else {
+        return;
+    };
+    let bin = env!("CARGO_BIN_EXE_tapmodes");
+    let dir = scratch();
     let line = format!(
         "{bin} tui --demo --out '{}' --variant e2e-run; echo EXIT=$?",
         dir.display()
@@ -213,4 +223,117 @@ fn demo_runs_saves_and_restores_the_terminal() {
     assert!(r.duration() as u64 + lost >= rec.frames);
     assert!(Path::new(&dir.join("e2e-run.csv")).exists());
     let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// Whether process `pid` still exists (a zombie counts as gone: it has exited).
+fn alive(pid: i32) -> bool {
+    std::fs::read_to_string(format!("/proc/{pid}/stat"))
+        .is_ok_and(|st| st.rsplit(") ").next().is_some_and(|r| !r.starts_with('Z')))
+}
+
+/// The run files after the app was ended from outside: the JSON covers exactly the frames
+/// and gaps the WAV holds, every tap is in it, and the WAV is complete (header = data).
+fn files_agree(dir: &Path, stem: &str, taps: usize) -> u64 {
+    let json = dir.join(format!("{stem}.json"));
+    let run = tapmodes::run::RunFile::load(&json).unwrap();
+    assert_eq!(run.hits_total, taps, "every tap taken is in the run file");
+    let rec = run.recording.as_ref().expect("a recording");
+    let wav = run.wav_path(&json).unwrap().unwrap();
+    let r = hound::WavReader::open(&wav).unwrap();
+    let lost: u64 = rec.gaps.iter().map(|g| g.1).sum();
+    assert_eq!(
+        r.duration() as u64 + lost,
+        rec.frames,
+        "WAV frames + gaps = the frames the JSON covers"
+    );
+    let on_disk = std::fs::metadata(&wav).unwrap().len();
+    let spec = r.spec();
+    let data =
+        u64::from(r.duration()) * u64::from(spec.channels) * u64::from(spec.bits_per_sample / 8);
+    assert!(
+        on_disk >= data && on_disk - data <= 256,
+        "header covers the data: {on_disk} bytes, {data} of samples"
+    );
+    rec.frames
+}
+
+/// SIGTERM, SIGINT and SIGHUP sent to the running app (and a real hang-up: the terminal
+/// window closed under it) end it like a save-and-quit: the terminal is restored (exit 0,
+/// main screen back), and the run files cover everything taken, including the stream after
+/// the last tap's save. Rounds: `TAPMODES_KILL_ROUNDS` (default 1).
+#[test]
+fn signals_end_the_app_cleanly() {
+    let rounds: usize = std::env::var("TAPMODES_KILL_ROUNDS")
+        .ok()
+        .and_then(|s| s.parse().ok())
+        .unwrap_or(1);
+    let bin = env!("CARGO_BIN_EXE_tapmodes");
+    for round in 0..rounds {
+        for (k, (name, sig)) in [
+            ("SIGTERM", Some(libc::SIGTERM)),
+            ("SIGINT", Some(libc::SIGINT)),
+            ("SIGHUP", Some(libc::SIGHUP)),
+            ("hang-up", None),
+        ]
+        .into_iter()
+        .enumerate()
+        {
+            let Some(s) = start_session(&format!("sig{round}-{k}")) else {
+                return;
+            };
+            let dir = crate::common::temp_dir(&format!("tui-sig-{name}-{round}"));
+            let pid_file = dir.join("pid");
+            let line = format!(
+                "sh -c 'echo $$ > {}; exec {bin} tui --demo --out {} --variant sig'; echo EXIT=$?",
+                pid_file.display(),
+                dir.display()
+            );
+            s.send(&[&line, "Enter"]);
+            s.wait_for(&["ARMED", "taps 0/0 kept"]);
+            let pid: i32 = std::fs::read_to_string(&pid_file)
+                .unwrap()
+                .trim()
+                .parse()
+                .unwrap();
+            for n in 1..=2 {
+                std::thread::sleep(Duration::from_millis(300));
+                s.send(&["Space"]);
+                s.wait_for(&[&format!("Last tap #{n}")]);
+            }
+            s.wait_for(&["taps 2/2 kept"]);
+            // Stream on past the last tap's save: that stretch must reach the files too.
+            std::thread::sleep(Duration::from_millis(1500 + 97 * round as u64));
+            let t0 = Instant::now();
+            match sig {
+                // SAFETY: a signal to the app this test started, by its process id.
+                Some(sig) => unsafe {
+                    libc::kill(pid, sig);
+                },
+                None => {
+                    let _ = s.cmd().args(["kill-window", "-t", &s.name]).status();
+                }
+            }
+            while alive(pid) && t0.elapsed() < PATIENCE {
+                std::thread::sleep(Duration::from_millis(2));
+            }
+            let took = t0.elapsed();
+            assert!(
+                !alive(pid),
+                "{name}: the app is still running after {took:?}"
+            );
+            let frames = files_agree(&dir, "sig", 2);
+            eprintln!("app {name} round {round}: gone after {took:?}, run covers {frames} frames");
+            assert!(took < Duration::from_secs(2), "{name}: took {took:?}");
+            if sig.is_some() {
+                let pane = s.wait_for(&["EXIT=0"]);
+                assert_eq!(
+                    s.display("#{alternate_on}"),
+                    "0",
+                    "{name}: alternate screen left"
+                );
+                assert!(!pane.contains("Last tap #"), "{name}: {pane}");
+            }
+            let _ = std::fs::remove_dir_all(&dir);
+        }
+    }
 }

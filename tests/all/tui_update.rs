@@ -405,3 +405,38 @@ fn update_is_a_function_of_the_model() {
     let fx = update(&mut m, Msg::Action(Action::Quit));
     assert!(fx.is_empty() && m.mode == Mode::ConfirmQuit);
 }
+
+/// Ended from outside (a signal): everything taken reaches the files, the stream after the
+/// last tap's save and an operator's unsaved verdict included, and the WAV is closed with
+/// its header over all its data.
+#[test]
+fn stop_from_outside_saves_everything_taken() {
+    let dir = scratch("stop");
+    let mut app = demo_of(10.0, 5.0, &dir);
+    assert_eq!(app.model.counts().1, 2);
+    app.press('x'); // an unsaved verdict
+    app.pump_seconds(0.5); // stream past the last save, no new tap
+    assert!(app.model.unsaved());
+    app.stop_saving();
+    let run = RunFile::load(&dir.join("tm9-arm-solid.json")).unwrap();
+    assert_eq!(run.hits_total, 2);
+    assert_eq!(run.hits[1].verdict, Verdict::Dropped, "the verdict is kept");
+    let rec = run.recording.unwrap();
+    assert_eq!(rec.frames, 44_000, "5.5 s at 8 kHz: the whole stream taken");
+    let wav = dir.join(&rec.wav);
+    let r = hound::WavReader::open(&wav).unwrap();
+    assert_eq!(r.duration() as u64, rec.frames);
+    assert_eq!(
+        std::fs::metadata(&wav).unwrap().len(),
+        44 + 2 * 2 * rec.frames,
+        "the header covers every byte of data"
+    );
+    // Without taps there is nothing to save: no run file, and the recording is not left
+    // behind without one (as after a quit with no tap).
+    let dir = scratch("stop0");
+    let mut app = quiet(1.0, &dir, None);
+    app.pump_seconds(0.5);
+    app.stop_saving();
+    assert!(!dir.join("tm9-arm-solid.json").exists());
+    assert!(!dir.join("tm9-arm-solid.wav").exists());
+}

@@ -86,6 +86,10 @@ pub enum Decoded {
     Header(StreamHeader),
     /// One sample instant: one value per channel, already multiplied by the channel's scale.
     Frame(Vec<f64>),
+    /// Frames known lost by the frame counter (binary form), emitted just before the first
+    /// frame after them: where a gap lands follows from the counter alone, never from how
+    /// the bytes were split into reads. A jump taken as a restart of the counter is no gap.
+    Gap(u64),
 }
 
 /// Counters of what the link delivered. `bytes` counts everything pushed; `frames` the
@@ -841,8 +845,9 @@ impl BinaryDecoder {
                         "the frame counter jumped ahead by {gap} frames (more than {MAX_FRAME_JUMP_S} s): taken as a restart of the counter, not as lost frames"
                     ),
                 );
-            } else if gap < 0x8000_0000 {
+            } else if gap < 0x8000_0000 && gap > 0 {
                 self.frames_lost += u64::from(gap);
+                out.push(Decoded::Gap(u64::from(gap)));
             }
         }
         self.next_frame = Some(first.wrapping_add(n_frames as u32));

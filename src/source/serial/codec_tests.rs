@@ -55,7 +55,7 @@ fn frames(out: &[Decoded]) -> Vec<Vec<f64>> {
     out.iter()
         .filter_map(|d| match d {
             Decoded::Frame(v) => Some(v.clone()),
-            Decoded::Header(_) => None,
+            Decoded::Header(_) | Decoded::Gap(_) => None,
         })
         .collect()
 }
@@ -64,7 +64,7 @@ fn headers(out: &[Decoded]) -> Vec<StreamHeader> {
     out.iter()
         .filter_map(|d| match d {
             Decoded::Header(h) => Some(h.clone()),
-            Decoded::Frame(_) => None,
+            Decoded::Frame(_) | Decoded::Gap(_) => None,
         })
         .collect()
 }
@@ -559,9 +559,13 @@ fn binary_frame_counter_reveals_device_side_overruns() {
     enc.skip_frames(25);
     bytes.extend(enc.samples(&raw_frames(10, 2, 15)));
     let mut dec = Decoder::with_form(WireForm::Binary);
-    decode(&mut dec, &bytes);
+    let out = decode(&mut dec, &bytes);
     assert_eq!(dec.stats().packets_lost, 0);
     assert_eq!(dec.frames_lost(), 25);
+    // The gap is an item of its own, just before the first frame after it.
+    assert_eq!(out[11], Decoded::Gap(25));
+    assert!(matches!(out[10], Decoded::Frame(_)) && matches!(out[12], Decoded::Frame(_)));
+    assert_eq!(out.len(), 22);
 }
 
 #[test]
@@ -971,6 +975,7 @@ fn arbitrary_bytes_never_panic_and_keep_stats_sane() {
             let mut channels = None;
             let mut n_frames = 0u64;
             let mut n_headers = 0u64;
+            let mut n_gap_frames = 0u64;
             for d in &out {
                 match d {
                     Decoded::Header(h) => {
@@ -990,9 +995,14 @@ fn arbitrary_bytes_never_panic_and_keep_stats_sane() {
                         assert!(v.iter().all(|x| x.is_finite()));
                         n_frames += 1;
                     }
+                    Decoded::Gap(n) => {
+                        assert!(*n > 0 && channels.is_some(), "gap {n} before a header");
+                        n_gap_frames += n;
+                    }
                 }
             }
             assert_eq!(s.frames, n_frames);
+            assert_eq!(whole.frames_lost(), n_gap_frames);
             assert!(s.resyncs <= s.packets_corrupt);
             match whole.form() {
                 Some(WireForm::Text) => {

@@ -105,15 +105,12 @@ impl SerialSource {
                 std::thread::sleep(Duration::from_millis(5));
             }
         };
-        let mut pending = Vec::new();
-        let mut seen_header = false;
-        for d in out {
-            match d {
-                Decoded::Header(_) => seen_header = true,
-                Decoded::Frame(f) if seen_header => pending.push(f),
-                Decoded::Frame(_) => {}
-            }
-        }
+        // What came with and after the header waits in the backlog, gaps included, and is
+        // taken in order by the first `next_block`; frames before the header are dropped.
+        let backlog = out
+            .into_iter()
+            .skip_while(|d| !matches!(d, Decoded::Header(_)))
+            .collect();
         let info = info_from(name, &header);
         crate::run::validate::check_stream(&info, &format!("the stream header of '{name}'"))?;
         let base_scales = (0..info_channels(&header))
@@ -126,7 +123,7 @@ impl SerialSource {
             decoder,
             header,
             info,
-            pending,
+            pending: Vec::new(),
             position: 0,
             carry: Vec::new(),
             gap: 0,
@@ -135,7 +132,7 @@ impl SerialSource {
             deferred: None,
             base_scales,
             timing: None,
-            backlog: Default::default(),
+            backlog,
         })
     }
 
@@ -194,7 +191,7 @@ impl SerialSource {
             decoder.push(&buf[..n], &mut out);
             frames.extend(out.drain(..).filter_map(|d| match d {
                 Decoded::Frame(f) => Some(f),
-                Decoded::Header(_) => None,
+                Decoded::Header(_) | Decoded::Gap(_) => None,
             }));
             if n == 0 {
                 std::thread::sleep(Duration::from_millis(5));
@@ -262,7 +259,7 @@ impl SerialSource {
                 .drain(..)
                 .filter_map(|d| match d {
                     Decoded::Frame(f) => Some(f),
-                    Decoded::Header(_) => None,
+                    Decoded::Header(_) | Decoded::Gap(_) => None,
                 })
                 .collect();
         }
@@ -285,6 +282,76 @@ impl SerialSource {
             headerless::Placed::Next { missing } => Some((f, missing)),
             headerless::Placed::Stale => None,
         }
+    }
+
+    /// One decoded item taken into the block being built. `Ok(true)` closes the block here:
+    /// frames are missing before the item (by the frame counter, or by the timestamps of a
+    /// headerless stream) and the block already holds frames, so the gap shows in the next
+    /// block's `start`. Everything is placed by the stream's own counters, never by where a
+    /// read happened to end.
+    fn take(&mut self, d: Decoded) -> Result<bool> {
+        match d {
+            Decoded::Header(h) => {
+                self.check_header(&h)?;
+                Ok(false)
+            }
+            Decoded::Gap(n) => {
+                if self.pending.is_empty() {
+                    self.position += n;
+                    return Ok(false);
+                }
+                self.gap += n;
+                Ok(true)
+            }
+            Decoded::Frame(f) => {
+                let Some((f, missing)) = self.place(f) else {
+                    return Ok(false);
+                };
+                if missing > 0 && !self.pending.is_empty() {
+                    self.carry = vec![f];
+                    self.gap += missing;
+                    return Ok(true);
+                }
+                self.position += missing;
+                self.pending.push(f);
+                Ok(false)
+            }
+        }
+    }
+
+    /// A header re-sent mid-run must describe the same stream.
+    fn check_header(&self, h: &StreamHeader) -> Result<()> {
+        if h.scales != self.header.scales || h.units != self.header.units {
+            crate::fail!(
+                "'{}' sent a new header with other scales or units ({}): the values would change meaning mid-run, so the capture stops; start a new run",
+                self.name,
+                h.scales
+                    .iter()
+                    .zip(&h.units)
+                    .map(|(s, u)| format!("{s} {}", crate::run::validate::clean_text(u, false)))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            );
+        }
+        if h.rate_hz != self.header.rate_hz || h.channels != self.header.channels {
+            crate::fail!(
+                "'{}' restarted with a different stream ({} Hz, channels {}): start a new run",
+                self.name,
+                h.rate_hz,
+                crate::run::validate::clean_text(&h.channels.join(","), false)
+            );
+        }
+        Ok(())
+    }
+
+    /// An error met while building a block: returned at once when the block is empty,
+    /// otherwise held back until the frames before it are delivered (nothing taken is lost).
+    fn stop(&mut self, e: Error) -> Result<()> {
+        if self.pending.is_empty() {
+            return Err(e);
+        }
+        self.deferred = Some(e);
+        Ok(())
     }
 
     /// Channel layout, for applying calibration from the command line.
@@ -363,24 +430,25 @@ impl Source for SerialSource {
             return Err(e);
         }
         let started = Instant::now();
-        let mut out = Vec::new();
-        // Frames held back behind a gap in the previous block (or read while measuring the
-        // rate) come first.
+        // Items held back behind a gap in the previous block (or read with the header, or
+        // while measuring the rate) come first.
         let mut cut = false;
         while let Some(d) = self.backlog.pop_front() {
-            if let Decoded::Frame(f) = d
-                && let Some((f, missing)) = self.place(f)
-            {
-                if missing > 0 && !self.pending.is_empty() {
-                    self.carry = vec![f];
-                    self.gap = missing;
+            match self.take(d) {
+                Ok(false) => {}
+                Ok(true) => {
                     cut = true;
                     break;
                 }
-                self.position += missing;
-                self.pending.push(f);
+                Err(e) => {
+                    self.backlog.clear();
+                    self.stop(e)?;
+                    cut = true;
+                    break;
+                }
             }
         }
+        let mut out = Vec::new();
         while !cut
             && self.pending.len() < self.block_len
             && started.elapsed() < Duration::from_millis(40)
@@ -393,11 +461,8 @@ impl Source for SerialSource {
                         self.name,
                         crate::error::describe_io(&e)
                     ));
-                    if self.pending.is_empty() {
-                        return Err(e);
-                    }
                     // Deliver what arrived before the failure first: nothing taken is lost.
-                    self.deferred = Some(e);
+                    self.stop(e)?;
                     break;
                 }
             };
@@ -413,69 +478,23 @@ impl Source for SerialSource {
                 continue;
             }
             self.last_data = Instant::now();
-            let lost_before = self.decoder.frames_lost();
             self.decoder.push(&self.buf[..n], &mut out);
-            let lost = self.decoder.frames_lost() - lost_before;
-            let before_gap = self.pending.len();
-            let mut items = std::mem::take(&mut out).into_iter();
+            let mut items = out.drain(..);
             while let Some(d) = items.next() {
-                match d {
-                    Decoded::Header(h) => {
-                        if h.scales != self.header.scales || h.units != self.header.units {
-                            crate::fail!(
-                                "'{}' sent a new header with other scales or units ({}): the values would change meaning mid-run, so the capture stops; start a new run",
-                                self.name,
-                                h.scales
-                                    .iter()
-                                    .zip(&h.units)
-                                    .map(|(s, u)| format!(
-                                        "{s} {}",
-                                        crate::run::validate::clean_text(u, false)
-                                    ))
-                                    .collect::<Vec<_>>()
-                                    .join(", ")
-                            );
-                        }
-                        if h.rate_hz != self.header.rate_hz || h.channels != self.header.channels {
-                            crate::fail!(
-                                "'{}' restarted with a different stream ({} Hz, channels {}): start a new run",
-                                self.name,
-                                h.rate_hz,
-                                crate::run::validate::clean_text(&h.channels.join(","), false)
-                            );
-                        }
+                match self.take(d) {
+                    Ok(false) => {}
+                    Ok(true) => {
+                        // The rest of this read waits behind the gap.
+                        self.backlog.extend(items.by_ref());
+                        cut = true;
+                        break;
                     }
-                    Decoded::Frame(f) => {
-                        if self.timing.is_none() {
-                            self.pending.push(f);
-                            continue;
-                        }
-                        let Some((f, missing)) = self.place(f) else {
-                            continue;
-                        };
-                        if missing > 0 && !self.pending.is_empty() {
-                            // Samples missing by their timestamps: close the block here,
-                            // the rest of this read waits behind the gap.
-                            self.carry = vec![f];
-                            self.gap = missing;
-                            self.backlog.extend(items.by_ref());
-                            cut = true;
-                            break;
-                        }
-                        self.position += missing;
-                        self.pending.push(f);
+                    Err(e) => {
+                        self.stop(e)?;
+                        cut = true;
+                        break;
                     }
                 }
-            }
-            if cut {
-                break;
-            }
-            if lost > 0 {
-                // Frames known lost: close the block before the gap and carry what came
-                // after it, so the gap shows in the next block's `start`.
-                self.carry = self.pending.split_off(before_gap);
-                self.gap = lost;
-                break;
             }
         }
         let n_ch = self.info.channels.len();

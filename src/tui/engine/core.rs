@@ -270,6 +270,14 @@ impl Engine {
                 Err(e) => out.push(Update::Problem(format!("cannot start a new run: {e}"))),
             },
             Cmd::Shutdown => out.extend(self.finish()),
+            Cmd::SaveAndShutdown => {
+                // The last save's modes are cached in the analysis when nothing changed
+                // since, so this costs a write, not a fit.
+                if !self.analysis.hits().is_empty() {
+                    out.extend(self.save(true));
+                }
+                out.extend(self.finish());
+            }
         }
         self.applied_seq = self.applied_seq.max(seq);
         out

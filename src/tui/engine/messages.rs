@@ -38,10 +38,21 @@ pub enum Cmd {
     Tap,
     /// Close this run's files and start a fresh analysis and recording.
     NewRun,
+    /// Close the recording after everything taken so far is analysed and every save asked
+    /// for is written (the operator quit).
     Shutdown,
+    /// The app is ended from outside (SIGINT, SIGTERM, SIGHUP, a lost terminal): as
+    /// `Shutdown`, but first the run files are written over everything taken, when the run
+    /// has taps, so the JSON covers exactly the frames and gaps the WAV holds.
+    SaveAndShutdown,
 }
 
 impl Cmd {
+    /// Whether the command ends the engine (nothing after it is carried out).
+    pub fn ends(&self) -> bool {
+        matches!(self, Cmd::Shutdown | Cmd::SaveAndShutdown)
+    }
+
     /// Whether the command changes what a save would write.
     pub fn changes_run(&self) -> bool {
         matches!(
@@ -201,6 +212,8 @@ pub enum Inbox {
     Update(Update),
     Key(ratatui::crossterm::event::KeyEvent),
     Resize,
+    /// SIGINT, SIGTERM or SIGHUP arrived: wakes the loop, which then ends the app.
+    Signal,
 }
 
 /// How often the worker sends the live view.

@@ -35,7 +35,8 @@ impl Worker {
             .all(|t| t.as_ref().is_some_and(|t| !t.is_finished()))
     }
 
-    /// Wait for the pump (it stops as soon as it has passed on `Cmd::Shutdown`).
+    /// Wait for the pump (it stops as soon as it has passed on `Cmd::Shutdown` or
+    /// `Cmd::SaveAndShutdown`).
     pub fn stop_pump(&mut self) {
         if let Some(t) = self.pump.take() {
             let _ = t.join();
@@ -58,8 +59,8 @@ impl Worker {
 
 /// Run the engine on its own thread, fed by `feed` through a pump thread; commands come in
 /// on `cmds` (with their sequence numbers) and updates go out on `out`. Ends on
-/// `Cmd::Shutdown` (after everything queued before it is analysed and saved and the
-/// recording is closed) or when the command channel closes.
+/// `Cmd::Shutdown` or `Cmd::SaveAndShutdown` (after everything queued before it is analysed
+/// and saved and the recording is closed) or when the command channel closes.
 pub fn spawn_worker(
     mut engine: Engine,
     feed: LiveFeed,
@@ -86,7 +87,7 @@ fn pump(feed: LiveFeed, cmds: Receiver<(u64, Cmd)>, work: Sender<Work>) {
                     if cmd == Cmd::Tap {
                         feed.request(Request::Tap);
                     }
-                    let stop = cmd == Cmd::Shutdown;
+                    let stop = cmd.ends();
                     if work.send(Work::Cmd(seq, cmd)).is_err() || stop {
                         return;
                     }
@@ -100,7 +101,7 @@ fn pump(feed: LiveFeed, cmds: Receiver<(u64, Cmd)>, work: Sender<Work>) {
             // Nothing more to read: wait for commands only.
             match cmds.recv_timeout(Duration::from_millis(100)) {
                 Ok((seq, cmd)) => {
-                    let stop = cmd == Cmd::Shutdown;
+                    let stop = cmd.ends();
                     if work.send(Work::Cmd(seq, cmd)).is_err() || stop {
                         return;
                     }
@@ -146,7 +147,7 @@ fn analyse(mut engine: Engine, work: Receiver<Work>, out: Sender<Inbox>) {
                 send(Update::Ended(e.map(|e| e.to_string())));
             }
             Ok(Work::Cmd(seq, cmd)) => {
-                let stop = cmd == Cmd::Shutdown;
+                let stop = cmd.ends();
                 for u in engine.command(seq, cmd) {
                     send(u);
                 }
