@@ -241,12 +241,13 @@ fn finish(
     if let Some(m) = &run.mount {
         let model = match m.loss_factor {
             Some(eta) => format!("hysteretic, loss factor {eta:.3}"),
-            None => "viscous".to_string(),
+            None => m.model_name().to_string(),
         };
         println!(
-            "mount (from the transmissibility): {:.1} Hz, damping {:.1} %, isolates above {:.1} Hz ({model} model, {:.0} % unexplained)",
+            "mount (from the transmissibility): {:.1} Hz, damping {:.1} %{}, isolates above {:.1} Hz ({model} model, {:.0} % unexplained)",
             m.natural_frequency_hz,
             100.0 * m.damping_ratio,
+            m.second_text(),
             m.isolation_onset_hz(),
             100.0 * m.error
         );

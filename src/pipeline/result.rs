@@ -3,7 +3,7 @@
 //! pipeline calls into `spectra` or `modes` to assemble a result of its own.
 
 use super::{Analysis, COHERENT_SPAN, FORCE_BAND_DB, FORCE_BAND_MAX_DB};
-use crate::modes::softmount::{DOUBTFUL_ERROR, Isolation, MountFit, MountModel};
+use crate::modes::softmount::{DOUBTFUL_ERROR, Isolation, MountFit};
 use crate::modes::{Flag, MIN_LINES, Mode, ModeSearch, SearchContext, search_modes};
 use crate::spectra::{Basis, Curve, Spectra};
 use std::sync::Arc;
@@ -79,12 +79,14 @@ impl Analysis {
         }
         if let Some(m) = mount.as_ref().filter(|m| m.error > DOUBTFUL_ERROR) {
             notes.push(format!(
-                "the mount model ({}) leaves {:.0} % of the transmissibility unexplained: two mount modes (bounce and pitch), an elastomer whose stiffness changes with frequency, or a poor base signal; treat the mount's frequency and damping as approximate",
-                match m.model {
-                    MountModel::Viscous => "viscous",
-                    MountModel::Hysteretic => "hysteretic",
-                },
-                100.0 * m.error
+                "the mount model ({}) leaves {:.0} % of the transmissibility unexplained: {}an elastomer whose stiffness changes with frequency, or a poor base signal; treat the mount's frequency and damping as approximate",
+                m.model_name(),
+                100.0 * m.error,
+                if m.second.is_some() {
+                    ""
+                } else {
+                    "two mount modes (bounce and pitch), "
+                }
             ));
         }
         if self.cfg.isolation_band.is_some() && isolation.is_none() {

@@ -166,9 +166,11 @@ fn run_section(file: &str, run: &RunFile) -> String {
     }
     if let Some(m) = &run.mount {
         s += &format!(
-            "<h3>Soft mount</h3>\n<p>Mount frequency {:.1} Hz, damping {:.1} %, isolates above {:.0} Hz; fit residual {:.3} over {:.0} to {:.0} Hz ({} lines).</p>\n",
+            "<h3>Soft mount</h3>\n<p>Mount frequency {:.1} Hz, damping {:.1} %{} ({} model), isolates above {:.0} Hz; fit residual {:.3} over {:.0} to {:.0} Hz ({} lines).</p>\n",
             m.natural_frequency_hz,
             100.0 * m.damping_ratio,
+            esc(&m.second_text()),
+            m.model_name(),
             m.isolation_onset_hz(),
             m.error,
             m.band_hz.0,

@@ -169,22 +169,28 @@ pub fn mount_lines(a: &AnalysisSnap) -> Vec<Line<'static>> {
     };
     // All of it from the pipeline's result (`AnalysisResult::mount`, `isolation`), as the
     // run file holds it: nothing is fitted here.
-    let model = if mf.loss_factor.is_some() {
-        "hysteretic"
-    } else {
-        "viscous"
+    let model = match &mf.second {
+        Some(_) => "two-mode",
+        None => mf.model_name(),
     };
     let doubtful = mf.error > crate::modes::softmount::DOUBTFUL_ERROR;
     // Lines of at most about 44 characters: they fit the narrow mode panel unwrapped.
-    let mut out = vec![
-        Line::from(vec![
-            Span::styled("mount ", Style::default().add_modifier(Modifier::BOLD)),
-            Span::raw(format!(
-                "{:.1} Hz, damping {:.1} %",
-                mf.natural_frequency_hz,
-                100.0 * mf.damping_ratio,
-            )),
-        ]),
+    let mut out = vec![Line::from(vec![
+        Span::styled("mount ", Style::default().add_modifier(Modifier::BOLD)),
+        Span::raw(format!(
+            "{:.1} Hz, damping {:.1} %",
+            mf.natural_frequency_hz,
+            100.0 * mf.damping_ratio,
+        )),
+    ])];
+    if let Some(b) = &mf.second {
+        out.push(Line::from(format!(
+            "  and {:.1} Hz, damping {:.1} %",
+            b.natural_frequency_hz,
+            100.0 * b.damping_ratio
+        )));
+    }
+    out.extend([
         Line::from(format!(
             "  isolates above {:.0} Hz",
             mf.isolation_onset_hz()
@@ -200,7 +206,7 @@ pub fn mount_lines(a: &AnalysisSnap) -> Vec<Line<'static>> {
                 Span::raw(": good")
             },
         ]),
-    ];
+    ]);
     let db = |v: Option<f64>| v.map_or("-".into(), |v| format!("{v:+.1}"));
     if let Some(i) = &a.run.isolation {
         out.push(Line::from(format!(

@@ -308,10 +308,12 @@ fn response_only_modes_come_from_the_spectrum_fit() {
 }
 
 #[test]
-fn a_stack_on_real_grommets_is_flagged_when_one_mount_mode_does_not_explain_it() {
+fn a_stack_on_real_grommets_gets_two_mount_modes_and_a_doubtful_fit() {
     // Viscoelastic grommets (a standard linear solid, loss factor about 0.19) and two
-    // mount modes, bounce at 97 Hz and pitch at 176 Hz: the single-mode mount fit must
-    // say it does not explain the transmissibility, in the result's notes.
+    // mount modes, bounce at 97 Hz and pitch at 176 Hz (the FE model's modes): one mount
+    // mode does not explain the transmissibility, two do better and are reported, and
+    // the note still says the fit leaves much unexplained (the elastomer's stiffness
+    // changes with frequency, which no viscous model follows).
     let name = "tm9-stack-8k-3ch";
     let t = truth(name);
     let path = format!(
@@ -329,14 +331,19 @@ fn a_stack_on_real_grommets_is_flagged_when_one_mount_mode_does_not_explain_it()
     let a = analyse_source(&mut src, roles, AnalysisConfig::default(), false).unwrap();
     let r = a.result();
     let mount = r.mount.as_ref().expect("a mount fit");
-    let bounce = t.modes[0].0;
-    assert!(rel(mount.natural_frequency_hz, bounce) < 0.05, "{mount:?}");
+    let (bounce, pitch) = (t.modes[0].0, t.modes[1].0);
+    assert!(rel(mount.natural_frequency_hz, bounce) < 0.03, "{mount:?}");
+    let second = mount.second.as_ref().expect("two mount modes");
+    assert!(rel(second.natural_frequency_hz, pitch) < 0.03, "{mount:?}");
+    assert!(second.one_mode_error > mount.error, "{mount:?}");
     assert!(
         mount.error > tapmodes::modes::softmount::DOUBTFUL_ERROR,
         "{mount:?}"
     );
     assert!(
-        r.notes.iter().any(|n| n.contains("two mount modes")),
+        r.notes
+            .iter()
+            .any(|n| n.contains("two viscous modes") && n.contains("unexplained")),
         "{:?}",
         r.notes
     );

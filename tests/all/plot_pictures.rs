@@ -233,6 +233,7 @@ fn response_spectrum_spread_and_mount_panel_are_drawn() {
         model: MountModel::default(),
         loss_factor: None,
         other_model_error: None,
+        second: None,
     };
     let fig = Figure {
         traces: vec![spectrum],
