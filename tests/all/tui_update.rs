@@ -440,3 +440,50 @@ fn stop_from_outside_saves_everything_taken() {
     assert!(!dir.join("tm9-arm-solid.json").exists());
     assert!(!dir.join("tm9-arm-solid.wav").exists());
 }
+
+/// Keeping a tap that has no record (cut short by the end of the recording here; a tap too
+/// soon after the previous one is the other case) is refused with the reason, not with
+/// "there is no tap" (the tap is on the board).
+#[test]
+fn keeping_a_tap_without_a_record_says_why() {
+    let dir = scratch("too-soon");
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/independent/tm9-frame-48k-s1.wav");
+    let source = tapmodes::source::wav::WavSource::open(&path).unwrap();
+    let roles = tapmodes::signal::RoleChoice::default()
+        .resolve(tapmodes::source::Source::info(&source))
+        .unwrap();
+    let launch = Launch {
+        source: Box::new(source),
+        roles,
+        config: tapmodes::pipeline::AnalysisConfig::default(),
+        out_dir: dir.clone(),
+        variant: "frame".into(),
+        auto_tap_s: None,
+        demo: false,
+        compare_with: Vec::new(),
+        drive: None,
+    };
+    let mut app = App::headless(launch).unwrap();
+    app.pump_seconds(12.0);
+    let hits = app.model.analysis.as_ref().unwrap().hits.clone();
+    let soon = (hits.iter())
+        .position(|h| h.verdict == Verdict::CutShort)
+        .expect("the recording ends inside its last tap's record");
+    while app.model.selected != Some(soon) {
+        app.key(if app.model.selected.unwrap_or(0) > soon {
+            KeyCode::Up
+        } else {
+            KeyCode::Down
+        });
+    }
+    app.press('y');
+    let notice = app.model.notice.clone().unwrap_or_default();
+    assert!(
+        notice.contains(&format!("tap #{} has no record", soon + 1)),
+        "{notice}"
+    );
+    assert_eq!(
+        app.model.analysis.as_ref().unwrap().hits[soon].verdict,
+        Verdict::CutShort
+    );
+}

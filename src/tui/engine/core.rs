@@ -219,7 +219,15 @@ impl Engine {
                         out.push(Update::Analysis(Arc::new(self.snapshot())));
                     }
                 } else {
-                    out.push(Update::Problem(format!("there is no tap #{}", index + 1)));
+                    // A tap without a record (too soon, cut short) cannot be averaged.
+                    out.push(Update::Problem(match self.analysis.hits().get(index) {
+                        Some(h) => format!(
+                            "tap #{} has no record to average ({}): it cannot be kept",
+                            index + 1,
+                            h.verdict.label()
+                        ),
+                        None => format!("there is no tap #{}", index + 1),
+                    }));
                 }
             }
             Cmd::SetLevel(level) => {
