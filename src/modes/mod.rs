@@ -143,6 +143,12 @@ pub struct SearchContext<'a> {
     /// averaged over the taps, on the curve's lines with the same windows. Peaks the taps
     /// do not lift 6 dB over the background are not modes.
     pub background: Option<(&'a [f64], &'a [f64])>,
+    /// Response only: the mean of the taps' complex response spectra, each turned to a
+    /// time origin at its trigger (see `pipeline::Analysis::search`). Near the modes it is
+    /// the structure's response to one mean tap, `H(w) F(w)`, with a phase, so the band fit
+    /// and its search for merged modes apply where the energy spectrum alone cannot
+    /// separate them.
+    pub response_complex: Option<&'a [realfft::num_complex::Complex64]>,
 }
 
 /// Damping ratios under this (Q over 1000) are not taken for modes of a frame, arm or
@@ -460,9 +466,21 @@ pub fn search_modes(
         })
         .collect();
     let budget = fit::FitBudget::standard();
+    // Response only: the band fit runs on the taps' mean complex spectrum.
+    let complex_response = (curve.basis == crate::spectra::Basis::Autospectrum)
+        .then_some(ctx.response_complex)
+        .flatten()
+        .map(|h| Curve {
+            basis: curve.basis,
+            magnitude: h.iter().map(|v| v.norm()).collect(),
+            phase_deg: Some(h.iter().map(|v| v.arg().to_degrees()).collect()),
+            coherence: None,
+            spread_db: None,
+            unit: curve.unit.clone(),
+        });
     fit::refine_modes(
         freqs,
-        curve,
+        complex_response.as_ref().unwrap_or(curve),
         resolution_hz,
         tau_s,
         &mut modes,
@@ -470,6 +488,18 @@ pub fn search_modes(
         &fit::FitConfig::default(),
         &budget,
     );
+    if complex_response.is_some() {
+        // Modes the fit added are read on the energy spectrum like the others.
+        for m in modes
+            .iter_mut()
+            .filter(|m| m.flags.contains(&Flag::FitOnly))
+        {
+            let k = freqs
+                .partition_point(|&f| f < m.frequency_hz)
+                .min(freqs.len() - 1);
+            m.magnitude = curve.magnitude[k];
+        }
+    }
     let poor_fits = if curve.basis == crate::spectra::Basis::Autospectrum {
         powerfit::fit_spectrum_modes(freqs, curve, resolution_hz, tau_s, &mut modes)
     } else {

@@ -161,7 +161,8 @@ pub fn fit_peak(
 }
 
 /// Response-only: frequency and damping from the parametric fit of the energy spectrum
-/// (`powerfit`) where it explains the peak, half-power kept as the cross-check. The band is
+/// (`powerfit`) where it explains the peak and the band fit on the taps' mean complex
+/// spectrum did not, half-power kept as the cross-check. The band is
 /// +-3 apparent half-power bandwidths (at least 6 lines, at most 20 % of the frequency),
 /// cut halfway to the neighbouring modes: common practice, no source. Returns the modes
 /// (frequency, residual) the fit did not explain.
@@ -176,6 +177,10 @@ pub fn fit_spectrum_modes(
     let centres: Vec<f64> = modes.iter().map(|m| m.frequency_hz).collect();
     let mut poor = Vec::new();
     for (i, m) in modes.iter_mut().enumerate() {
+        // A mode the band fit explained (on the taps' mean complex spectrum) keeps it.
+        if m.method == "fit" {
+            continue;
+        }
         // Seeds: the half-power values with the window's damping put back.
         let z_app = m.damping_ratio.unwrap_or(0.01) + m.window_damping;
         let f_app = m.frequency_hz;

@@ -131,9 +131,13 @@ impl Analysis {
             band_hz: self.band(spectra, &mut notes),
             ..self.cfg.modes.clone()
         };
+        let aligned = (basis == Basis::Autospectrum)
+            .then(|| self.aligned_response(spectra))
+            .flatten();
         let ctx = SearchContext {
             background: (spectra.background_records > 0)
                 .then(|| (&spectra.background_esd[..], &spectra.response_esd[..])),
+            response_complex: aligned.as_deref(),
         };
         if spectra.background_records == 0 {
             notes.push(
@@ -181,6 +185,33 @@ impl Analysis {
             );
         }
         found
+    }
+
+    /// Response only: the mean of the accepted taps' complex response spectra (those kept
+    /// for the uncertainty, up to 16), each multiplied by `e^(j w t_trig)` with `t_trig` the
+    /// trigger's time in its record, so that the time origin is the tap and the structure's
+    /// decaying response reads as a sum of poles. What is left of each tap's delay behind its
+    /// trigger (a fraction of a millisecond) turns the phase slowly; the band fit's complex
+    /// residues and residual terms take it up over a band. `None` with fewer than two taps.
+    fn aligned_response(&self, spectra: &Spectra) -> Option<Vec<realfft::num_complex::Complex64>> {
+        use realfft::num_complex::Complex64;
+        let hits = self.accepted_hit_spectra();
+        if hits.len() < 2 {
+            return None;
+        }
+        let t = self.detector.pretrigger_len() as f64 / self.info.sample_rate;
+        let n = spectra.freqs.len();
+        let turn: Vec<Complex64> = (spectra.freqs.iter())
+            .map(|f| Complex64::from_polar(1.0, 2.0 * std::f64::consts::PI * f * t))
+            .collect();
+        let mut sum = vec![Complex64::new(0.0, 0.0); n];
+        for h in &hits {
+            for ((s, x), r) in sum.iter_mut().zip(&h.response).zip(&turn) {
+                *s += x * r;
+            }
+        }
+        let k = hits.len() as f64;
+        Some(sum.into_iter().map(|s| s / k).collect())
     }
 
     /// The band the modes are searched in. A given band is used as is; without an upper

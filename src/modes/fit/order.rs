@@ -67,16 +67,46 @@ pub fn refine_modes(
         // at least `FIT_WORK_TRIALS`, at most `FIT_WORK_PER_BAND`.
         let mut trials_left = (4 * budget.band_used()).clamp(FIT_WORK_TRIALS, FIT_WORK_PER_BAND);
         let mut fit = fit;
+        let mut band_now = band;
+        let width = band.1 - band.0;
         for _ in 0..MAX_ADDED {
             if fit.error <= SPLIT_MIN_ERROR || trials_left == 0 {
                 break;
             }
             let mut round: Option<BandFit> = None;
             for (trial, start) in trials_of_one_more(&fit, freqs, &h) {
+                // The band widens to hold every seed's own +-3 bandwidths (a mode found at
+                // the edge lies partly outside), by at most the first band's width a side.
+                let need = (trial.iter()).fold(band_now, |b, t| {
+                    let hw = 6.0 * t.damping_ratio * t.frequency_hz;
+                    (b.0.min(t.frequency_hz - hw), b.1.max(t.frequency_hz + hw))
+                });
+                let trial_band = (
+                    need.0.max(band.0 - width).max(0.0),
+                    need.1.min(band.1 + width),
+                );
+                // On a widened band the residual to beat is the present modes' on that band.
+                let reference = if trial_band == band_now {
+                    fit.error
+                } else {
+                    let base = fit_band_limited(
+                        freqs,
+                        &h,
+                        trial_band,
+                        &seeds_of(&fit),
+                        cfg.max_iterations,
+                        budget,
+                        trials_left,
+                        Start::SeedsFirst,
+                        true,
+                    );
+                    trials_left -= budget.band_used().min(trials_left);
+                    base.map_or(fit.error, |b| b.error.max(fit.error))
+                };
                 let tried = fit_band_limited(
                     freqs,
                     &h,
-                    band,
+                    trial_band,
                     &trial,
                     cfg.max_iterations,
                     budget,
@@ -86,9 +116,10 @@ pub fn refine_modes(
                 );
                 trials_left -= budget.band_used().min(trials_left);
                 if let Some(f2) = tried
-                    && f2.error < KEEP_RATIO * fit.error
+                    && f2.error < KEEP_RATIO * reference
                     && every_pole_shows(&f2)
                 {
+                    band_now = trial_band;
                     round = Some(f2);
                 }
                 // The first trial that passes is taken: the next round can still improve it.
@@ -117,8 +148,15 @@ pub fn refine_modes(
                 }
                 None => {
                     // A mode the peaks did not show (close modes merged into one peak):
-                    // a new entry, read at its own line.
+                    // a new entry, read at its own line; unless a widened band reached a
+                    // mode of another band (within the pole's half-power bandwidth).
                     let f_pole = fit.poles[pole].im / (2.0 * PI);
+                    let bw = (-fit.poles[pole].re / PI).max(resolution_hz);
+                    if (modes.iter().enumerate())
+                        .any(|(i, m)| !members.contains(&i) && (m.frequency_hz - f_pole).abs() < bw)
+                    {
+                        continue;
+                    }
                     let nearest = (0..members.len())
                         .min_by(|&x, &y| {
                             (group[x].frequency_hz - f_pole)
