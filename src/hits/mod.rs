@@ -3,7 +3,10 @@
 //! The detector works sample by sample with state that never depends on block boundaries,
 //! so a file read in one piece and a live stream in small blocks give identical hits.
 
+mod floor;
 pub mod pulses;
+
+use floor::{CHUNK, Floor};
 
 use crate::signal::{Block, Roles, StreamInfo};
 use serde::{Deserialize, Serialize};
@@ -123,86 +126,6 @@ pub struct Hit {
     pub noise_rms: f64,
 }
 
-const CHUNK: usize = 256;
-const CHUNK_HISTORY: usize = 32;
-
-/// Running idle statistics of one channel: median of per-chunk mean and RMS.
-#[derive(Debug, Clone, Default)]
-struct Floor {
-    sum: f64,
-    sum_sq: f64,
-    count: usize,
-    means: std::collections::VecDeque<f64>,
-    rmss: std::collections::VecDeque<f64>,
-    /// Medians, recomputed once per completed chunk (not per sample).
-    base: f64,
-    noise: f64,
-}
-
-impl Floor {
-    /// Add a sample; true when it completed a chunk (the medians changed).
-    fn add(&mut self, x: f64) -> bool {
-        self.sum += x;
-        self.sum_sq += x * x;
-        self.count += 1;
-        if self.count == CHUNK {
-            let mean = self.sum / CHUNK as f64;
-            let var = (self.sum_sq / CHUNK as f64 - mean * mean).max(0.0);
-            if self.sum_sq == 0.0 {
-                // Digital silence (exact zeros: a muted input, a padded gap) says nothing
-                // about the noise the next tap will sit on: left out of the history.
-                self.discard_chunk();
-                return false;
-            }
-            if self.means.len() == CHUNK_HISTORY {
-                self.means.pop_front();
-                self.rmss.pop_front();
-            }
-            self.means.push_back(mean);
-            self.rmss.push_back(var.sqrt());
-            self.base = median(self.means.iter().copied());
-            self.noise = median(self.rmss.iter().copied());
-            self.discard_chunk();
-            return true;
-        }
-        false
-    }
-    /// Add samples in order, exactly as `add` one by one would.
-    fn add_all(&mut self, x: &[f64]) {
-        let mut rest = x;
-        while !rest.is_empty() {
-            let take = (CHUNK - 1 - self.count).min(rest.len());
-            let (run, tail) = rest.split_at(take);
-            for &v in run {
-                self.sum += v;
-                self.sum_sq += v * v;
-            }
-            self.count += take;
-            // The sample that completes a chunk (if any) goes through `add`.
-            if let Some((&v, tail)) = tail.split_first() {
-                self.add(v);
-                rest = tail;
-            } else {
-                rest = tail;
-            }
-        }
-    }
-    fn discard_chunk(&mut self) {
-        self.sum = 0.0;
-        self.sum_sq = 0.0;
-        self.count = 0;
-    }
-    fn ready(&self) -> bool {
-        !self.means.is_empty()
-    }
-    fn baseline(&self) -> f64 {
-        self.base
-    }
-    fn noise(&self) -> f64 {
-        self.noise
-    }
-}
-
 /// The smallest noise floor the trigger assumes for a channel: the quantisation noise of a
 /// 16-bit converter at the channel's full scale (q / sqrt(12) with q = full scale / 2^15,
 /// about -101 dBFS), none when the full scale is unknown (a float stream says nothing about
@@ -212,23 +135,6 @@ pub fn noise_lower_bound(channel: &crate::signal::ChannelInfo) -> f64 {
     match channel.full_scale {
         Some(fs) if fs > 0.0 && fs.is_finite() => fs / 32768.0 / 12f64.sqrt(),
         _ => 0.0,
-    }
-}
-
-fn median(values: impl Iterator<Item = f64>) -> f64 {
-    let mut v: Vec<f64> = values.collect();
-    if v.is_empty() {
-        return 0.0;
-    }
-    let m = v.len() / 2;
-    let odd = v.len() % 2 == 1;
-    let (low, mid, _) = v.select_nth_unstable_by(m, f64::total_cmp);
-    let upper = *mid;
-    if odd {
-        upper
-    } else {
-        let lower = low.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        0.5 * (lower + upper)
     }
 }
 

@@ -42,11 +42,16 @@ impl SecondPulse {
     }
 }
 
+/// The first index of the largest value above zero and that value; (0, 0) when none is.
+/// The largest value is found first in one branch-free pass, then its first index: the
+/// same as keeping the index along in one pass, faster.
 fn argmax(v: &[f64]) -> (usize, f64) {
-    v.iter().enumerate().fold(
-        (0, 0.0f64),
-        |(i, m), (j, &x)| if x > m { (j, x) } else { (i, m) },
-    )
+    let m = v.iter().fold(0.0f64, |m, &x| if x > m { x } else { m });
+    if m > 0.0 {
+        (v.iter().position(|&x| x == m).unwrap_or(0), m)
+    } else {
+        (0, 0.0)
+    }
 }
 
 /// The strongest pulse of `level` (a non-negative envelope) and the largest value outside
@@ -69,14 +74,15 @@ fn other_pulse(level: &[f64], edge: f64, guard: usize, floor: f64) -> Option<Sec
         .find(|&i| ends(i, level.get(i + 1)))
         .unwrap_or(level.len())
         + guard;
-    let (q, qv) = level
-        .iter()
-        .enumerate()
-        .filter(|(i, _)| *i < a || *i >= b)
-        .fold(
-            (0, 0.0f64),
-            |(i, m), (j, &v)| if v > m { (j, v) } else { (i, m) },
-        );
+    // The largest value outside the region: before it, then after it (the first of
+    // equal values wins, as in one pass over both).
+    let before = argmax(&level[..a]);
+    let after = argmax(&level[b.min(level.len())..]);
+    let (q, qv) = if after.1 > before.1 {
+        (after.0 + b, after.1)
+    } else {
+        before
+    };
     (qv > floor).then_some(SecondPulse {
         offset: q as i64 - p as i64,
         ratio: qv / peak,

@@ -353,14 +353,16 @@ impl SpectralAverager {
     /// Add one record's transforms (from `transform` of this averager or one like it).
     pub fn add_spectra(&mut self, hs: &HitSpectra) {
         let rx = &hs.response;
+        // The response's own sum goes along with the force's cross sums (one pass).
         if let (Some(fx), Some(acc)) = (&hs.force, self.force_response.as_mut()) {
-            acc.add(fx, rx);
+            acc.add_with_auto(fx, rx, &mut self.response_auto);
+        } else {
+            for (s, x) in self.response_auto.iter_mut().zip(rx.iter()) {
+                *s += x.norm_sqr();
+            }
         }
         if let (Some(bx), Some(acc)) = (&hs.base, self.base_response.as_mut()) {
             acc.add(bx, rx);
-        }
-        for (s, x) in self.response_auto.iter_mut().zip(rx.iter()) {
-            *s += x.norm_sqr();
         }
         if let Some(spread) = self.spread.as_mut() {
             let factors = &self.factors;
