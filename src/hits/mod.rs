@@ -567,9 +567,7 @@ impl HitDetector {
         // (margin for beating of close modes: common practice, no source).
         let tc = self.trigger.channel;
         let tail = &raw[tc][raw[tc].len() - (raw[tc].len() / 10).max(1)..];
-        let remaining = tail
-            .iter()
-            .fold(0.0f64, |m, v| m.max((v - self.frozen[tc].0).abs()));
+        let remaining = pulses::peak_deviation(tail, self.frozen[tc].0);
         self.hits += 1;
         let hit = self.judge(raw, start, trigger);
         self.last_trigger = Some(trigger);
@@ -597,7 +595,7 @@ impl HitDetector {
             let Some(fs) = self.full_scale[ch] else {
                 continue;
             };
-            let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+            let peak = pulses::peak_deviation(x, 0.0);
             if peak >= c.clip_fraction * fs {
                 verdict = Verdict::Overload;
                 reason = format!(
@@ -614,7 +612,7 @@ impl HitDetector {
             .collect();
         let resp = &record[self.roles.response];
         let noise = self.frozen[self.roles.response].1;
-        let peak_response = resp.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let peak_response = pulses::peak_deviation(resp, 0.0);
         let tail_len = (resp.len() / 20).max(1);
         let tail = &resp[resp.len() - tail_len..];
         let tail_ms = tail.iter().map(|v| v * v).sum::<f64>() / tail_len as f64;
@@ -626,7 +624,7 @@ impl HitDetector {
         let peak_force = self
             .roles
             .force
-            .map(|f| record[f].iter().fold(0.0f64, |m, v| m.max(v.abs())));
+            .map(|f| pulses::peak_deviation(&record[f], 0.0));
         if verdict == Verdict::Accepted {
             let fs = self.fs();
             let second = match self.roles.force {
