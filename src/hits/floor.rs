@@ -108,6 +108,38 @@ impl Floor {
         }
     }
 
+    /// `add_all` on two channels' floors at once (their sums are independent chains of
+    /// additions, so side by side they run in each other's wait): exactly two `add_all`.
+    pub fn add_all_pair(a: &mut Floor, b: &mut Floor, xa: &[f64], xb: &[f64]) {
+        if a.count != b.count || xa.len() != xb.len() {
+            a.add_all(xa);
+            b.add_all(xb);
+            return;
+        }
+        let (mut ra, mut rb) = (xa, xb);
+        while !ra.is_empty() {
+            let take = (CHUNK - 1 - a.count).min(ra.len());
+            let ((run_a, tail_a), (run_b, tail_b)) = (ra.split_at(take), rb.split_at(take));
+            for (&u, &v) in run_a.iter().zip(run_b) {
+                a.sum += u;
+                a.sum_sq += u * u;
+                b.sum += v;
+                b.sum_sq += v * v;
+            }
+            a.count += take;
+            b.count += take;
+            // The samples that complete a chunk (if any) go through `add`.
+            match (tail_a.split_first(), tail_b.split_first()) {
+                (Some((&u, ta)), Some((&v, tb))) => {
+                    a.add(u);
+                    b.add(v);
+                    (ra, rb) = (ta, tb);
+                }
+                _ => (ra, rb) = (tail_a, tail_b),
+            }
+        }
+    }
+
     pub fn discard_chunk(&mut self) {
         self.sum = 0.0;
         self.sum_sq = 0.0;
@@ -183,6 +215,35 @@ mod tests {
                 assert_eq!(w.sorted.len(), history.len());
             }
         }
+    }
+
+    /// Two floors fed side by side end exactly as fed one after the other, whatever the
+    /// piece lengths and with a chunk of digital silence on one channel.
+    #[test]
+    fn paired_feeding_equals_single() {
+        let mut rng = crate::rng::Rng::new(5);
+        let mut xa: Vec<f64> = (0..CHUNK * 50).map(|_| 0.1 + rng.normal()).collect();
+        let xb: Vec<f64> = (0..CHUNK * 50).map(|_| 0.01 * rng.normal()).collect();
+        xa[CHUNK * 3..CHUNK * 5].iter_mut().for_each(|v| *v = 0.0);
+        let (mut a1, mut b1, mut a2, mut b2) = Default::default();
+        let mut at = 0;
+        while at < xa.len() {
+            let n = (1 + (rng.next_u64() % 700) as usize).min(xa.len() - at);
+            let (pa, pb) = (&xa[at..at + n], &xb[at..at + n]);
+            Floor::add_all_pair(&mut a1, &mut b1, pa, pb);
+            Floor::add_all(&mut a2, pa);
+            Floor::add_all(&mut b2, pb);
+            for (p, s) in [(&a1, &a2), (&b1, &b2)] {
+                let (p, s): (&Floor, &Floor) = (p, s);
+                assert_eq!(p.count, s.count);
+                assert_eq!(p.sum.to_bits(), s.sum.to_bits());
+                assert_eq!(p.sum_sq.to_bits(), s.sum_sq.to_bits());
+                assert_eq!(p.baseline().to_bits(), s.baseline().to_bits());
+                assert_eq!(p.noise().to_bits(), s.noise().to_bits());
+            }
+            at += n;
+        }
+        assert!(a1.ready() && b1.ready());
     }
 
     /// A whole floor: the baseline and noise of a steady signal are its mean and RMS.

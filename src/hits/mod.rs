@@ -512,9 +512,15 @@ impl HitDetector {
         if m == 0 {
             return;
         }
+        if let ([fa, fb], [xa, xb]) = (&mut self.floors[..], &block.channels[..]) {
+            Floor::add_all_pair(fa, fb, &xa[k..k + m], &xb[k..k + m]);
+        } else {
+            for (f, x) in self.floors.iter_mut().zip(&block.channels) {
+                f.add_all(&x[k..k + m]);
+            }
+        }
         for c in 0..self.ring.len() {
             let x = &block.channels[c][k..k + m];
-            self.floors[c].add_all(x);
             if self.pre_len > 0 {
                 let ring = &mut self.ring[c];
                 if m >= self.pre_len {
