@@ -55,20 +55,6 @@ impl CrossAccumulator {
         self.count += 1;
     }
 
-    /// `add`, and `|b|^2` added to `auto` as well, in the same pass.
-    pub fn add_with_auto(&mut self, a: &[Complex64], b: &[Complex64], auto: &mut [f64]) {
-        let sums = self.gaa.iter_mut().zip(&mut self.gbb).zip(&mut self.gab);
-        let inputs = a.iter().zip(b).zip(auto.iter_mut());
-        for (((gaa, gbb), gab), ((a, b), auto)) in sums.zip(inputs) {
-            let bb = b.norm_sqr();
-            *gaa += a.norm_sqr();
-            *gbb += bb;
-            *gab += a.conj() * b;
-            *auto += bb;
-        }
-        self.count += 1;
-    }
-
     /// Averaged, scaled spectra (Gaa, Gbb, Gab); `factor[k]` holds the one-sided factor
     /// and the scale.
     pub fn averaged(&self, factor: &[f64]) -> (Vec<f64>, Vec<f64>, Vec<Complex64>) {

@@ -171,6 +171,8 @@ pub struct SpectralAverager {
     factors: Vec<f64>,
     force_response: Option<CrossAccumulator>,
     base_response: Option<CrossAccumulator>,
+    /// Sum of the response's |X|^2 when there is no force channel; with one, the force
+    /// accumulator's `gbb` is that very sum (same terms, same order) and is used instead.
     response_auto: Vec<f64>,
     background_auto: Vec<f64>,
     background_count: usize,
@@ -353,9 +355,9 @@ impl SpectralAverager {
     /// Add one record's transforms (from `transform` of this averager or one like it).
     pub fn add_spectra(&mut self, hs: &HitSpectra) {
         let rx = &hs.response;
-        // The response's own sum goes along with the force's cross sums (one pass).
+        // With a force channel the response's own sum is the force accumulator's `gbb`.
         if let (Some(fx), Some(acc)) = (&hs.force, self.force_response.as_mut()) {
-            acc.add_with_auto(fx, rx, &mut self.response_auto);
+            acc.add(fx, rx);
         } else {
             for (s, x) in self.response_auto.iter_mut().zip(rx.iter()) {
                 *s += x.norm_sqr();
@@ -463,8 +465,8 @@ impl SpectralAverager {
                 .base_response
                 .as_ref()
                 .map(|a| a.averaged(&self.factors)),
-            response_esd: self
-                .response_auto
+            response_esd: (self.force_response.as_ref())
+                .map_or(&self.response_auto, |a| &a.gbb)
                 .iter()
                 .zip(&self.factors)
                 .map(|(g, c)| g * c / n)
