@@ -324,10 +324,16 @@ impl Analysis {
                     || (hit.verdict.is_accepted() && self.kept_for_spread() < SPREAD_RECORDS));
             self.records.push(keep.then(|| hit.record.clone()));
             if hit.verdict.is_accepted() {
-                if let Some(off) = self.offload.as_mut() {
+                if let Some(mut off) = self.offload.take() {
                     // Transformed on another thread; `add_job` gives the record back to
                     // `last` if this is still the most recent hit.
+                    while off.full()
+                        && let Some(job) = off.take(true)
+                    {
+                        self.add_job(&mut off, job);
+                    }
                     off.submit(index, std::mem::take(&mut hit.record));
+                    self.offload = Some(off);
                 } else {
                     let hs = self.averager.transform(&hit.record);
                     self.add_hit_spectra(index, hs);
@@ -554,8 +560,8 @@ pub fn drain_with_progress(
 ) -> Result<Analysis> {
     let threads = crate::parallel::threads();
     if threads > 1 {
-        // The reading thread helps once the others are this many records behind.
-        let limit = 4 * threads;
+        // Records in flight at most (their records and transforms in memory).
+        let limit = 2 * threads;
         analysis.offload = Some(offload::Offload::start(
             &analysis.averager,
             threads - 1,

@@ -3,14 +3,18 @@
 //! An offline drain hands every accepted record to worker threads (one fewer than the
 //! cores) and goes on reading; finished transforms come back in the order the records were
 //! handed in, so the averages add them in stream order and stay bit-identical to doing it
-//! one by one. When the workers fall behind by `limit` records, the reading thread
-//! transforms the next record itself, which bounds the memory in flight and puts every
-//! core on the FFTs once the reading is done.
+//! one by one. When every worker has `HELP_AT` records waiting, the reading thread
+//! transforms the next record itself (every core on the FFTs when the reading is the
+//! quicker part); at most `limit` records are in flight, beyond that the reading thread
+//! waits for the oldest (memory stays bounded however the threads are scheduled).
 
 use crate::spectra::{HitSpectra, RecordTransform, SpectralAverager};
 use std::collections::VecDeque;
 use std::sync::mpsc::{Receiver, Sender, channel};
 use std::thread::JoinHandle;
+
+/// Records waiting per worker before the reading thread transforms one itself.
+const HELP_AT: usize = 2;
 
 /// One accepted record on its way through a transform.
 pub struct Job {
@@ -45,7 +49,7 @@ pub struct Offload {
 
 impl Offload {
     /// `workers` threads (at least one) transforming as `averager` does; at most `limit`
-    /// records in flight before the calling thread helps.
+    /// records in flight (see `full`).
     pub fn start(averager: &SpectralAverager, workers: usize, limit: usize) -> Self {
         let own = averager.record_transform();
         let workers = (0..workers.max(1))
@@ -83,6 +87,12 @@ impl Offload {
         self.order.len()
     }
 
+    /// True when `limit` records are in flight: take the oldest back (`take(true)`)
+    /// before handing in another.
+    pub fn full(&self) -> bool {
+        self.order.len() >= self.limit
+    }
+
     /// Hand in an accepted record.
     pub fn submit(&mut self, index: usize, record: Vec<Vec<f64>>) {
         let spectra = self.spare.pop().unwrap_or_else(|| self.own.blank());
@@ -96,7 +106,7 @@ impl Offload {
             .iter()
             .filter(|s| matches!(s, Slot::On(_)))
             .count();
-        if busy >= self.limit {
+        if busy >= HELP_AT * self.workers.len() {
             self.own.transform_into(&job.record, &mut job.spectra);
             self.order.push_back(Slot::Done(job));
             return;
