@@ -3,7 +3,10 @@
 //! The detector works sample by sample with state that never depends on block boundaries,
 //! so a file read in one piece and a live stream in small blocks give identical hits.
 
+mod floor;
 pub mod pulses;
+
+use floor::{CHUNK, Floor};
 
 use crate::signal::{Block, Roles, StreamInfo};
 use serde::{Deserialize, Serialize};
@@ -123,86 +126,6 @@ pub struct Hit {
     pub noise_rms: f64,
 }
 
-const CHUNK: usize = 256;
-const CHUNK_HISTORY: usize = 32;
-
-/// Running idle statistics of one channel: median of per-chunk mean and RMS.
-#[derive(Debug, Clone, Default)]
-struct Floor {
-    sum: f64,
-    sum_sq: f64,
-    count: usize,
-    means: std::collections::VecDeque<f64>,
-    rmss: std::collections::VecDeque<f64>,
-    /// Medians, recomputed once per completed chunk (not per sample).
-    base: f64,
-    noise: f64,
-}
-
-impl Floor {
-    /// Add a sample; true when it completed a chunk (the medians changed).
-    fn add(&mut self, x: f64) -> bool {
-        self.sum += x;
-        self.sum_sq += x * x;
-        self.count += 1;
-        if self.count == CHUNK {
-            let mean = self.sum / CHUNK as f64;
-            let var = (self.sum_sq / CHUNK as f64 - mean * mean).max(0.0);
-            if self.sum_sq == 0.0 {
-                // Digital silence (exact zeros: a muted input, a padded gap) says nothing
-                // about the noise the next tap will sit on: left out of the history.
-                self.discard_chunk();
-                return false;
-            }
-            if self.means.len() == CHUNK_HISTORY {
-                self.means.pop_front();
-                self.rmss.pop_front();
-            }
-            self.means.push_back(mean);
-            self.rmss.push_back(var.sqrt());
-            self.base = median(self.means.iter().copied());
-            self.noise = median(self.rmss.iter().copied());
-            self.discard_chunk();
-            return true;
-        }
-        false
-    }
-    /// Add samples in order, exactly as `add` one by one would.
-    fn add_all(&mut self, x: &[f64]) {
-        let mut rest = x;
-        while !rest.is_empty() {
-            let take = (CHUNK - 1 - self.count).min(rest.len());
-            let (run, tail) = rest.split_at(take);
-            for &v in run {
-                self.sum += v;
-                self.sum_sq += v * v;
-            }
-            self.count += take;
-            // The sample that completes a chunk (if any) goes through `add`.
-            if let Some((&v, tail)) = tail.split_first() {
-                self.add(v);
-                rest = tail;
-            } else {
-                rest = tail;
-            }
-        }
-    }
-    fn discard_chunk(&mut self) {
-        self.sum = 0.0;
-        self.sum_sq = 0.0;
-        self.count = 0;
-    }
-    fn ready(&self) -> bool {
-        !self.means.is_empty()
-    }
-    fn baseline(&self) -> f64 {
-        self.base
-    }
-    fn noise(&self) -> f64 {
-        self.noise
-    }
-}
-
 /// The smallest noise floor the trigger assumes for a channel: the quantisation noise of a
 /// 16-bit converter at the channel's full scale (q / sqrt(12) with q = full scale / 2^15,
 /// about -101 dBFS), none when the full scale is unknown (a float stream says nothing about
@@ -212,23 +135,6 @@ pub fn noise_lower_bound(channel: &crate::signal::ChannelInfo) -> f64 {
     match channel.full_scale {
         Some(fs) if fs > 0.0 && fs.is_finite() => fs / 32768.0 / 12f64.sqrt(),
         _ => 0.0,
-    }
-}
-
-fn median(values: impl Iterator<Item = f64>) -> f64 {
-    let mut v: Vec<f64> = values.collect();
-    if v.is_empty() {
-        return 0.0;
-    }
-    let m = v.len() / 2;
-    let odd = v.len() % 2 == 1;
-    let (low, mid, _) = v.select_nth_unstable_by(m, f64::total_cmp);
-    let upper = *mid;
-    if odd {
-        upper
-    } else {
-        let lower = low.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        0.5 * (lower + upper)
     }
 }
 
@@ -606,9 +512,15 @@ impl HitDetector {
         if m == 0 {
             return;
         }
+        if let ([fa, fb], [xa, xb]) = (&mut self.floors[..], &block.channels[..]) {
+            Floor::add_all_pair(fa, fb, &xa[k..k + m], &xb[k..k + m]);
+        } else {
+            for (f, x) in self.floors.iter_mut().zip(&block.channels) {
+                f.add_all(&x[k..k + m]);
+            }
+        }
         for c in 0..self.ring.len() {
             let x = &block.channels[c][k..k + m];
-            self.floors[c].add_all(x);
             if self.pre_len > 0 {
                 let ring = &mut self.ring[c];
                 if m >= self.pre_len {
@@ -661,9 +573,7 @@ impl HitDetector {
         // (margin for beating of close modes: common practice, no source).
         let tc = self.trigger.channel;
         let tail = &raw[tc][raw[tc].len() - (raw[tc].len() / 10).max(1)..];
-        let remaining = tail
-            .iter()
-            .fold(0.0f64, |m, v| m.max((v - self.frozen[tc].0).abs()));
+        let remaining = pulses::peak_deviation(tail, self.frozen[tc].0);
         self.hits += 1;
         let hit = self.judge(raw, start, trigger);
         self.last_trigger = Some(trigger);
@@ -691,7 +601,7 @@ impl HitDetector {
             let Some(fs) = self.full_scale[ch] else {
                 continue;
             };
-            let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+            let peak = pulses::peak_deviation(x, 0.0);
             if peak >= c.clip_fraction * fs {
                 verdict = Verdict::Overload;
                 reason = format!(
@@ -708,7 +618,7 @@ impl HitDetector {
             .collect();
         let resp = &record[self.roles.response];
         let noise = self.frozen[self.roles.response].1;
-        let peak_response = resp.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let peak_response = pulses::peak_deviation(resp, 0.0);
         let tail_len = (resp.len() / 20).max(1);
         let tail = &resp[resp.len() - tail_len..];
         let tail_ms = tail.iter().map(|v| v * v).sum::<f64>() / tail_len as f64;
@@ -720,7 +630,7 @@ impl HitDetector {
         let peak_force = self
             .roles
             .force
-            .map(|f| record[f].iter().fold(0.0f64, |m, v| m.max(v.abs())));
+            .map(|f| pulses::peak_deviation(&record[f], 0.0));
         if verdict == Verdict::Accepted {
             let fs = self.fs();
             let second = match self.roles.force {

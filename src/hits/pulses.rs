@@ -42,11 +42,45 @@ impl SecondPulse {
     }
 }
 
+/// The largest value above zero (0 when none is), NaN left out. Eight running maxima
+/// side by side (the compiler makes them vector lanes) give exactly the one-by-one result:
+/// a maximum is exact whatever the order.
+fn max_above_zero(v: &[f64]) -> f64 {
+    let mut lanes = [0.0f64; 8];
+    let mut chunks = v.chunks_exact(8);
+    for c in &mut chunks {
+        for (l, &x) in lanes.iter_mut().zip(c) {
+            *l = if x > *l { x } else { *l };
+        }
+    }
+    (lanes.iter().chain(chunks.remainder())).fold(0.0f64, |m, &x| if x > m { x } else { m })
+}
+
+/// The largest `|x - base|` over `v` (0 for none; NaN left out), in vector lanes as
+/// `max_above_zero`: exactly `v.iter().fold(0.0, |m, x| m.max((x - base).abs()))`.
+pub(super) fn peak_deviation(v: &[f64], base: f64) -> f64 {
+    let mut lanes = [0.0f64; 8];
+    let mut chunks = v.chunks_exact(8);
+    for c in &mut chunks {
+        for (l, &x) in lanes.iter_mut().zip(c) {
+            let d = (x - base).abs();
+            *l = if d > *l { d } else { *l };
+        }
+    }
+    let rest = chunks.remainder().iter().map(|x| (x - base).abs());
+    (lanes.into_iter().chain(rest)).fold(0.0f64, |m, x| if x > m { x } else { m })
+}
+
+/// The first index of the largest value above zero and that value; (0, 0) when none is.
+/// The largest value is found first, then its first index: the same as keeping the index
+/// along in one pass, faster.
 fn argmax(v: &[f64]) -> (usize, f64) {
-    v.iter().enumerate().fold(
-        (0, 0.0f64),
-        |(i, m), (j, &x)| if x > m { (j, x) } else { (i, m) },
-    )
+    let m = max_above_zero(v);
+    if m > 0.0 {
+        (v.iter().position(|&x| x == m).unwrap_or(0), m)
+    } else {
+        (0, 0.0)
+    }
 }
 
 /// The strongest pulse of `level` (a non-negative envelope) and the largest value outside
@@ -69,14 +103,15 @@ fn other_pulse(level: &[f64], edge: f64, guard: usize, floor: f64) -> Option<Sec
         .find(|&i| ends(i, level.get(i + 1)))
         .unwrap_or(level.len())
         + guard;
-    let (q, qv) = level
-        .iter()
-        .enumerate()
-        .filter(|(i, _)| *i < a || *i >= b)
-        .fold(
-            (0, 0.0f64),
-            |(i, m), (j, &v)| if v > m { (j, v) } else { (i, m) },
-        );
+    // The largest value outside the region: before it, then after it (the first of
+    // equal values wins, as in one pass over both).
+    let before = argmax(&level[..a]);
+    let after = argmax(&level[b.min(level.len())..]);
+    let (q, qv) = if after.1 > before.1 {
+        (after.0 + b, after.1)
+    } else {
+        before
+    };
     (qv > floor).then_some(SecondPulse {
         offset: q as i64 - p as i64,
         ratio: qv / peak,
@@ -87,7 +122,7 @@ fn other_pulse(level: &[f64], edge: f64, guard: usize, floor: f64) -> Option<Sec
 /// before or after it.
 pub fn second_force_pulse(force: &[f64], fraction: f64, noise_limit: f64) -> Option<SecondPulse> {
     let level: Vec<f64> = force.iter().map(|v| v.abs()).collect();
-    let peak = level.iter().fold(0.0f64, |m, &v| m.max(v));
+    let peak = max_above_zero(&level);
     other_pulse(&level, 0.05, 0, (fraction * peak).max(noise_limit))
 }
 
@@ -225,6 +260,43 @@ mod tests {
                     .sum::<f64>()
             })
             .collect()
+    }
+
+    /// The lane-wise maxima give what the plain one-pass folds give, bit for bit, on
+    /// lengths around the lane count, with ties, signed zeros, NaN and infinities.
+    #[test]
+    fn lane_maxima_equal_plain_folds() {
+        let mut rng = crate::rng::Rng::new(7);
+        let specials = [0.0, -0.0, f64::NAN, f64::INFINITY, -3.0, 2.5];
+        for len in 0..40 {
+            for round in 0..20 {
+                let v: Vec<f64> = (0..len)
+                    .map(|_| {
+                        let r = rng.next_u64();
+                        match (round % 3, r % 4) {
+                            (0, _) => rng.normal(),
+                            (1, 0) => specials[(r >> 8) as usize % specials.len()],
+                            (1, _) => ((r >> 8) % 3) as f64,
+                            _ => -rng.uniform(),
+                        }
+                    })
+                    .collect();
+                let plain =
+                    v.iter().enumerate().fold(
+                        (0, 0.0f64),
+                        |(i, m), (j, &x)| {
+                            if x > m { (j, x) } else { (i, m) }
+                        },
+                    );
+                let got = argmax(&v);
+                assert_eq!((got.0, got.1.to_bits()), (plain.0, plain.1.to_bits()));
+                for base in [0.0, 0.5, -1.0] {
+                    let plain = v.iter().fold(0.0f64, |m, x| m.max((x - base).abs()));
+                    let got = peak_deviation(&v, base);
+                    assert_eq!(got.to_bits(), plain.to_bits(), "{v:?} base {base}");
+                }
+            }
+        }
     }
 
     #[test]

@@ -2,6 +2,7 @@
 
 use crate::error::Result;
 use crate::hits::{CheckConfig, Hit, HitDetector, TriggerConfig, TriggerLevel, Verdict};
+pub mod offload;
 pub mod result;
 
 use crate::modes::ModeConfig;
@@ -115,14 +116,10 @@ pub struct Analysis {
     /// Per-hit transforms of the first `SPREAD_RECORDS` kept accepted records (parallel to
     /// `hits`): made once for the average and reused by the per-hit uncertainty.
     hit_spectra: Vec<Option<HitSpectra>>,
-    /// Accepted records (hit index, record) waiting to be transformed together on all
-    /// cores; only `drain_into` lets them gather (`batch` > 1), and flushes before it
-    /// returns, so the averages seen from outside are always complete.
-    pending: Vec<(usize, Vec<Vec<f64>>)>,
-    batch: usize,
-    /// Buffers reused between batches: transforms not kept, and per-thread FFT buffers.
-    spare: Vec<HitSpectra>,
-    workers: Vec<crate::spectra::Transformer>,
+    /// Accepted records being transformed on other threads while reading goes on; only
+    /// `drain_into` sets it up, and it waits for them before it returns, so the averages
+    /// seen from outside are always complete.
+    offload: Option<offload::Offload>,
 }
 
 impl Analysis {
@@ -204,10 +201,7 @@ impl Analysis {
             disarmed: Vec::new(),
             cache: std::sync::Mutex::new(None),
             hit_spectra: Vec::new(),
-            pending: Vec::new(),
-            batch: 1,
-            spare: Vec::new(),
-            workers: Vec::new(),
+            offload: None,
         })
     }
 
@@ -305,7 +299,12 @@ impl Analysis {
         let mut found = Vec::new();
         self.detector.finish(&mut found);
         let n = self.take_hits(found);
-        self.flush();
+        if let Some(mut off) = self.offload.take() {
+            while let Some(job) = off.take(true) {
+                self.add_job(&mut off, job);
+            }
+            self.offload = Some(off);
+        }
         n
     }
 
@@ -325,10 +324,16 @@ impl Analysis {
                     || (hit.verdict.is_accepted() && self.kept_for_spread() < SPREAD_RECORDS));
             self.records.push(keep.then(|| hit.record.clone()));
             if hit.verdict.is_accepted() {
-                if self.batch > 1 {
-                    // Transformed later with others; `flush` gives the record back to
+                if let Some(mut off) = self.offload.take() {
+                    // Transformed on another thread; `add_job` gives the record back to
                     // `last` if this is still the most recent hit.
-                    self.pending.push((index, std::mem::take(&mut hit.record)));
+                    while off.full()
+                        && let Some(job) = off.take(true)
+                    {
+                        self.add_job(&mut off, job);
+                    }
+                    off.submit(index, std::mem::take(&mut hit.record));
+                    self.offload = Some(off);
                 } else {
                     let hs = self.averager.transform(&hit.record);
                     self.add_hit_spectra(index, hs);
@@ -338,41 +343,40 @@ impl Analysis {
                 self.last = Some(hit);
             }
         }
-        if self.pending.len() >= self.batch {
-            self.flush();
+        // Transforms done on other threads are added as they come, in stream order.
+        if let Some(mut off) = self.offload.take() {
+            while let Some(job) = off.take(false) {
+                self.add_job(&mut off, job);
+            }
+            self.offload = Some(off);
         }
         n
     }
 
-    /// Transform the waiting records on all cores and add them in stream order.
-    fn flush(&mut self) {
-        if self.pending.is_empty() {
-            return;
+    /// Add a record transformed on another thread; its buffers go back for reuse unless
+    /// they are kept for the uncertainty.
+    fn add_job(&mut self, off: &mut offload::Offload, job: offload::Job) {
+        if let Some(spare) = self.add_hit_spectra(job.index, job.spectra) {
+            off.recycle(spare);
         }
-        let (index, records): (Vec<usize>, Vec<Vec<Vec<f64>>>) =
-            std::mem::take(&mut self.pending).into_iter().unzip();
-        let done = self
-            .averager
-            .transform_batch(records, &mut self.spare, &mut self.workers);
-        for (index, (record, hs)) in index.into_iter().zip(done) {
-            self.add_hit_spectra(index, hs);
-            if let Some(last) = self.last.as_mut()
-                && last.number == self.hits[index].number
-            {
-                last.record = record;
-            }
+        if let Some(last) = self.last.as_mut()
+            && last.number == self.hits[job.index].number
+        {
+            last.record = job.record;
         }
     }
 
     /// Add an accepted hit's transforms to the average; keep them for the uncertainty
-    /// while its record is kept and fewer than `SPREAD_RECORDS` are stored.
-    fn add_hit_spectra(&mut self, index: usize, hs: HitSpectra) {
+    /// while its record is kept and fewer than `SPREAD_RECORDS` are stored (else they
+    /// are given back).
+    fn add_hit_spectra(&mut self, index: usize, hs: HitSpectra) -> Option<HitSpectra> {
         self.averager.add_spectra(&hs);
         let stored = self.hit_spectra.iter().filter(|h| h.is_some()).count();
         if self.records[index].is_some() && stored < SPREAD_RECORDS {
             self.hit_spectra[index] = Some(hs);
-        } else if self.batch > 1 {
-            self.spare.push(hs);
+            None
+        } else {
+            Some(hs)
         }
     }
 
@@ -546,25 +550,37 @@ pub struct Progress {
     pub accepted: usize,
 }
 
-/// `drain_into`, calling `progress` after every block. Accepted records are transformed in
-/// batches on all cores (the averages are the same as one by one: sums in stream order).
+/// `drain_into`, calling `progress` after every block. Accepted records are transformed on
+/// the other cores while this thread reads on (see `offload`; the averages are the same as
+/// one by one: sums in stream order).
 pub fn drain_with_progress(
     source: &mut dyn crate::source::Source,
     mut analysis: Analysis,
     progress: &mut dyn FnMut(Progress),
 ) -> Result<Analysis> {
-    analysis.batch = 4 * crate::parallel::threads();
+    let threads = crate::parallel::threads();
+    if threads > 1 {
+        // Records in flight at most (their records and transforms in memory).
+        let limit = 2 * threads;
+        analysis.offload = Some(offload::Offload::start(
+            &analysis.averager,
+            threads - 1,
+            limit,
+        ));
+    }
     while let Some(block) = source.next_block()? {
         analysis.push(&block);
         progress(Progress {
             frames: block.start + block.len() as u64,
             hits: analysis.hits.len(),
-            accepted: analysis.averager.count() + analysis.pending.len(),
+            accepted: analysis.averager.count()
+                + analysis
+                    .offload
+                    .as_ref()
+                    .map_or(0, offload::Offload::in_flight),
         });
     }
     analysis.finish();
-    analysis.batch = 1;
-    analysis.spare = Vec::new();
-    analysis.workers = Vec::new();
+    analysis.offload = None;
     Ok(analysis)
 }

@@ -46,10 +46,11 @@ impl CrossAccumulator {
     }
 
     pub fn add(&mut self, a: &[Complex64], b: &[Complex64]) {
-        for k in 0..self.gaa.len() {
-            self.gaa[k] += a[k].norm_sqr();
-            self.gbb[k] += b[k].norm_sqr();
-            self.gab[k] += a[k].conj() * b[k];
+        let sums = self.gaa.iter_mut().zip(&mut self.gbb).zip(&mut self.gab);
+        for (((gaa, gbb), gab), (a, b)) in sums.zip(a.iter().zip(b)) {
+            *gaa += a.norm_sqr();
+            *gbb += b.norm_sqr();
+            *gab += a.conj() * b;
         }
         self.count += 1;
     }

@@ -171,6 +171,8 @@ pub struct SpectralAverager {
     factors: Vec<f64>,
     force_response: Option<CrossAccumulator>,
     base_response: Option<CrossAccumulator>,
+    /// Sum of the response's |X|^2 when there is no force channel; with one, the force
+    /// accumulator's `gbb` is that very sum (same terms, same order) and is used instead.
     response_auto: Vec<f64>,
     background_auto: Vec<f64>,
     background_count: usize,
@@ -179,6 +181,67 @@ pub struct SpectralAverager {
     spread: Option<Spread>,
     count: usize,
     units: (String, String),
+}
+
+/// Window a record's response (exponential window), force (force window times the same
+/// exponential, so the pole shift is exact) and base channels and transform them into `hs`.
+fn window_and_transform(
+    roles: Roles,
+    exponential: &[f64],
+    force_exp: &[f64],
+    fft: &mut Transformer,
+    record: &[Vec<f64>],
+    hs: &mut HitSpectra,
+) {
+    fft.transform(&record[roles.response], exponential, &mut hs.response);
+    if let (Some(f), Some(fx)) = (roles.force, hs.force.as_mut()) {
+        fft.transform(&record[f], force_exp, fx);
+    }
+    if let (Some(b), Some(bx)) = (roles.base, hs.base.as_mut()) {
+        fft.transform(&record[b], exponential, bx);
+    }
+}
+
+/// A record's transforms made away from the averager (on another thread), exactly as
+/// `SpectralAverager::transform` makes them.
+pub struct RecordTransform {
+    roles: Roles,
+    exponential: std::sync::Arc<[f64]>,
+    force_exp: std::sync::Arc<[f64]>,
+    fft: Transformer,
+    force: bool,
+    base: bool,
+}
+
+impl RecordTransform {
+    /// Another one with its own FFT buffers (one per thread).
+    pub fn fresh(&self) -> Self {
+        RecordTransform {
+            roles: self.roles,
+            exponential: std::sync::Arc::clone(&self.exponential),
+            force_exp: std::sync::Arc::clone(&self.force_exp),
+            fft: self.fft.fresh(),
+            force: self.force,
+            base: self.base,
+        }
+    }
+
+    /// Buffers for one hit's transforms.
+    pub fn blank(&self) -> HitSpectra {
+        let zero = || vec![Complex64::new(0.0, 0.0); self.fft.lines()];
+        HitSpectra {
+            response: zero(),
+            force: self.force.then(zero),
+            base: self.base.then(zero),
+        }
+    }
+
+    /// Transform one record (one vector per stream channel, baseline removed) into `hs`
+    /// (buffers from `blank`).
+    pub fn transform_into(&mut self, record: &[Vec<f64>], hs: &mut HitSpectra) {
+        let (exp, force_exp) = (&self.exponential, &self.force_exp);
+        window_and_transform(self.roles, exp, force_exp, &mut self.fft, record, hs);
+    }
 }
 
 /// The transforms of one record as the averager adds them (windowed, zero-padded real
@@ -272,54 +335,36 @@ impl SpectralAverager {
     }
 
     fn transform_into(&self, fft: &mut Transformer, record: &[Vec<f64>], hs: &mut HitSpectra) {
-        let windows = &self.windows;
-        fft.transform(
-            &record[self.roles.response],
-            &windows.exponential,
-            &mut hs.response,
-        );
-        // Force: force window times the same exponential, so the pole shift is exact.
-        if let (Some(f), Some(fx)) = (self.roles.force, hs.force.as_mut()) {
-            fft.transform(&record[f], &self.force_exp, fx);
-        }
-        if let (Some(b), Some(bx)) = (self.roles.base, hs.base.as_mut()) {
-            fft.transform(&record[b], &windows.exponential, bx);
-        }
+        let (exp, force_exp) = (&self.windows.exponential, &self.force_exp);
+        window_and_transform(self.roles, exp, force_exp, fft, record, hs);
     }
 
-    /// Transform many records on all cores into `out` (one per record), reusing the
-    /// buffers of `spare` and the per-thread FFT buffers of `workers` between calls.
-    pub fn transform_batch(
-        &self,
-        records: Vec<Vec<Vec<f64>>>,
-        spare: &mut Vec<HitSpectra>,
-        workers: &mut Vec<Transformer>,
-    ) -> Vec<(Vec<Vec<f64>>, HitSpectra)> {
-        let threads = crate::parallel::threads().min(records.len()).max(1);
-        while workers.len() < threads {
-            workers.push(self.fft.fresh());
+    /// What transforming records as this averager does needs (windows, roles, an FFT with
+    /// its own buffers), apart from the sums: for transforms on other threads.
+    pub fn record_transform(&self) -> RecordTransform {
+        RecordTransform {
+            roles: self.roles,
+            exponential: std::sync::Arc::from(self.windows.exponential.as_slice()),
+            force_exp: std::sync::Arc::from(self.force_exp.as_slice()),
+            fft: self.fft.fresh(),
+            force: self.force_response.is_some(),
+            base: self.base_response.is_some(),
         }
-        let mut jobs: Vec<(Vec<Vec<f64>>, HitSpectra)> = records
-            .into_iter()
-            .map(|r| (r, spare.pop().unwrap_or_else(|| self.blank())))
-            .collect();
-        crate::parallel::for_each_mut(&mut workers[..threads], &mut jobs, |fft, (r, hs)| {
-            self.transform_into(fft, r, hs)
-        });
-        jobs
     }
 
     /// Add one record's transforms (from `transform` of this averager or one like it).
     pub fn add_spectra(&mut self, hs: &HitSpectra) {
         let rx = &hs.response;
+        // With a force channel the response's own sum is the force accumulator's `gbb`.
         if let (Some(fx), Some(acc)) = (&hs.force, self.force_response.as_mut()) {
             acc.add(fx, rx);
+        } else {
+            for (s, x) in self.response_auto.iter_mut().zip(rx.iter()) {
+                *s += x.norm_sqr();
+            }
         }
         if let (Some(bx), Some(acc)) = (&hs.base, self.base_response.as_mut()) {
             acc.add(bx, rx);
-        }
-        for (s, x) in self.response_auto.iter_mut().zip(rx.iter()) {
-            *s += x.norm_sqr();
         }
         if let Some(spread) = self.spread.as_mut() {
             let factors = &self.factors;
@@ -420,8 +465,8 @@ impl SpectralAverager {
                 .base_response
                 .as_ref()
                 .map(|a| a.averaged(&self.factors)),
-            response_esd: self
-                .response_auto
+            response_esd: (self.force_response.as_ref())
+                .map_or(&self.response_auto, |a| &a.gbb)
                 .iter()
                 .zip(&self.factors)
                 .map(|(g, c)| g * c / n)
