@@ -163,7 +163,20 @@ impl Analysis {
         let records = self.accepted_records();
         if records.len() >= 2 {
             let hit_spectra = self.accepted_hit_spectra();
-            let curves = crate::modes::uncertainty::hit_curves(&self.averager, &hit_spectra, basis);
+            let mut curves =
+                crate::modes::uncertainty::hit_curves(&self.averager, &hit_spectra, basis);
+            if basis == Basis::Autospectrum {
+                // Each tap's phase about its trigger, so modes the band fit read on the mean
+                // complex spectrum are refitted tap by tap like an FRF's.
+                let turn = self.onset_turn(spectra);
+                for (c, h) in curves.iter_mut().zip(&hit_spectra) {
+                    c.phase_deg = Some(
+                        (h.response.iter().zip(&turn))
+                            .map(|(x, r)| (x * r).arg().to_degrees())
+                            .collect(),
+                    );
+                }
+            }
             crate::modes::uncertainty::attach(
                 modes,
                 &spectra.freqs,
@@ -199,12 +212,8 @@ impl Analysis {
         if hits.len() < 2 {
             return None;
         }
-        let t = self.detector.pretrigger_len() as f64 / self.info.sample_rate;
-        let n = spectra.freqs.len();
-        let turn: Vec<Complex64> = (spectra.freqs.iter())
-            .map(|f| Complex64::from_polar(1.0, 2.0 * std::f64::consts::PI * f * t))
-            .collect();
-        let mut sum = vec![Complex64::new(0.0, 0.0); n];
+        let turn = self.onset_turn(spectra);
+        let mut sum = vec![Complex64::new(0.0, 0.0); turn.len()];
         for h in &hits {
             for ((s, x), r) in sum.iter_mut().zip(&h.response).zip(&turn) {
                 *s += x * r;
@@ -212,6 +221,16 @@ impl Analysis {
         }
         let k = hits.len() as f64;
         Some(sum.into_iter().map(|s| s / k).collect())
+    }
+
+    /// `e^(j w t_trig)` per line: moves a record's time origin to its trigger.
+    fn onset_turn(&self, spectra: &Spectra) -> Vec<realfft::num_complex::Complex64> {
+        let t = self.detector.pretrigger_len() as f64 / self.info.sample_rate;
+        (spectra.freqs.iter())
+            .map(|f| {
+                realfft::num_complex::Complex64::from_polar(1.0, 2.0 * std::f64::consts::PI * f * t)
+            })
+            .collect()
     }
 
     /// The band the modes are searched in. A given band is used as is; without an upper

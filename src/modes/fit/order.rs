@@ -195,7 +195,7 @@ pub const KEEP_RATIO: f64 = 0.7;
 
 /// An added mode must make at least this share of the fitted curve at its own frequency
 /// (a pole that only shapes the background is not a mode): common practice, no source.
-pub const OWN_SHARE: f64 = 0.25;
+pub const OWN_SHARE: f64 = 0.5;
 
 /// Seeds (apparent values) of the fit's poles.
 fn seeds_of(fit: &BandFit) -> Vec<Seed> {
