@@ -173,7 +173,7 @@ fn an_older_tap_shows_its_own_traces_and_verdict() {
 }
 
 #[test]
-fn enter_reads_a_tap_whole_and_y_x_decide_there() {
+fn enter_opens_a_tap_in_full_where_y_or_x_decide() {
     let dir = scratch("detail");
     let mut plan = preset("tm9-arm-solid", 2).unwrap();
     plan.hammer.double_hit_chance = 1.0;
