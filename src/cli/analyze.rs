@@ -244,7 +244,7 @@ fn finish(
             None => m.model_name().to_string(),
         };
         println!(
-            "mount (from the transmissibility): {:.1} Hz, damping {:.1} %{}, isolates above {:.1} Hz ({model} model, {:.0} % unexplained)",
+            "mount (from the transmissibility): {:.1} Hz, damping {:.1} %{}, isolates above {:.1} Hz (model: {model}; {:.0} % unexplained)",
             m.natural_frequency_hz,
             100.0 * m.damping_ratio,
             m.second_text(),

@@ -315,48 +315,9 @@ pub fn fit_two_modes(
     };
     let (f0, z0) = (one.natural_frequency_hz, one.damping_ratio.clamp(0.01, 0.3));
     let (fa, fb) = two_peaks(&idx, freqs, &curve.magnitude).unwrap_or((0.8 * f0, 1.25 * f0));
-    let mut p = vec![fa.ln(), z0.ln(), fb.ln(), z0.ln()];
-    let (mut r, _, _) = solve(&p)?;
-    let mut cost = r.norm_squared();
-    let mut lambda = 1e-3;
-    for _ in 0..200 {
-        let h = 1e-6;
-        let mut jac = DMatrix::<f64>::zeros(r.len(), 4);
-        for j in 0..4 {
-            let mut q = p.clone();
-            q[j] += h;
-            jac.set_column(j, &((solve(&q)?.0 - &r) / h));
-        }
-        let jtj = jac.transpose() * &jac;
-        let g = jac.transpose() * &r;
-        let mut improved = false;
-        while lambda < 1e12 {
-            let mut a = jtj.clone();
-            for d in 0..4 {
-                a[(d, d)] += lambda * jtj[(d, d)].max(1e-12);
-            }
-            let Some(step) = a.cholesky().map(|c| c.solve(&(-&g))) else {
-                lambda *= 10.0;
-                continue;
-            };
-            let trial: Vec<f64> = p.iter().zip(step.iter()).map(|(a, b)| a + b).collect();
-            if trial.iter().all(|v| v.abs() < 20.0)
-                && let Some((rt, _, _)) = solve(&trial)
-                && rt.norm_squared() < cost
-            {
-                let gain = (cost - rt.norm_squared()) / cost.max(f64::MIN_POSITIVE);
-                cost = rt.norm_squared();
-                (p, r) = (trial, rt);
-                lambda = (lambda / 3.0).max(1e-12);
-                improved = gain > 1e-12;
-                break;
-            }
-            lambda *= 4.0;
-        }
-        if !improved {
-            break;
-        }
-    }
+    let p = levenberg_marquardt(vec![fa.ln(), z0.ln(), fb.ln(), z0.ln()], 200, |q| {
+        solve(q).map(|(r, _, _)| r)
+    })?;
     let (r, c1, c2) = solve(&p)?;
     let (mut a, mut b) = ((p[0].exp(), p[1].exp(), c1), (p[2].exp(), p[3].exp(), c2));
     if a.0 > b.0 {
@@ -468,50 +429,7 @@ fn fit_model(
     // Seeds: f_n at the peak, zeta from the peak height |T| ~ 1 / (2 zeta).
     let pk = curve.magnitude[ipk].max(1.0);
     let z0 = (0.5 / pk).clamp(0.01, 0.5);
-    let mut p = vec![f_pk.ln(), z0.ln()];
-    let (mut r, _) = residual(&p);
-    let mut cost = r.norm_squared();
-    let mut lambda = 1e-3;
-    for _ in 0..100 {
-        let h = 1e-6;
-        let mut jac = DMatrix::<f64>::zeros(r.len(), 2);
-        for j in 0..2 {
-            let mut pp = p.clone();
-            let mut pm = p.clone();
-            pp[j] += h;
-            pm[j] -= h;
-            jac.set_column(j, &((residual(&pp).0 - residual(&pm).0) / (2.0 * h)));
-        }
-        let jtj = jac.transpose() * &jac;
-        let g = jac.transpose() * &r;
-        let mut improved = false;
-        while lambda < 1e12 {
-            let mut a = jtj.clone();
-            for d in 0..2 {
-                a[(d, d)] += lambda * jtj[(d, d)].max(1e-12);
-            }
-            let Some(step) = a.cholesky().map(|c| c.solve(&(-&g))) else {
-                lambda *= 10.0;
-                continue;
-            };
-            let trial = vec![p[0] + step[0], p[1] + step[1]];
-            let (rt, _) = residual(&trial);
-            let c = rt.norm_squared();
-            if c.is_finite() && c < cost {
-                let gain = (cost - c) / cost.max(f64::MIN_POSITIVE);
-                p = trial;
-                r = rt;
-                cost = c;
-                lambda = (lambda / 3.0).max(1e-12);
-                improved = gain > 1e-14;
-                break;
-            }
-            lambda *= 4.0;
-        }
-        if !improved {
-            break;
-        }
-    }
+    let p = levenberg_marquardt(vec![f_pk.ln(), z0.ln()], 100, |q| Some(residual(q).0))?;
     let (r, gain) = residual(&p);
     let norm: f64 = match &meas {
         Some(m) => m.iter().map(|v| v.norm_sqr()).sum::<f64>(),
@@ -530,6 +448,65 @@ fn fit_model(
         other_model_error: None,
         second: None,
     })
+}
+
+/// Levenberg-Marquardt (Marquardt 1963) on parameters that are logarithms (each kept under
+/// 20 in size), with a central-difference Jacobian; `residual` is `None` where the model
+/// cannot be evaluated. Returns the parameters, or `None` when the start cannot be.
+fn levenberg_marquardt(
+    mut p: Vec<f64>,
+    iterations: usize,
+    residual: impl Fn(&[f64]) -> Option<DVector<f64>>,
+) -> Option<Vec<f64>> {
+    let m = p.len();
+    let mut r = residual(&p)?;
+    let mut cost = r.norm_squared();
+    let mut lambda = 1e-3;
+    for _ in 0..iterations {
+        let h = 1e-6;
+        let mut jac = DMatrix::<f64>::zeros(r.len(), m);
+        for j in 0..m {
+            let mut pp = p.clone();
+            let mut pm = p.clone();
+            pp[j] += h;
+            pm[j] -= h;
+            let (Some(rp), Some(rm)) = (residual(&pp), residual(&pm)) else {
+                return Some(p);
+            };
+            jac.set_column(j, &((rp - rm) / (2.0 * h)));
+        }
+        let jtj = jac.transpose() * &jac;
+        let g = jac.transpose() * &r;
+        let mut improved = false;
+        while lambda < 1e12 {
+            let mut a = jtj.clone();
+            for d in 0..m {
+                a[(d, d)] += lambda * jtj[(d, d)].max(1e-12);
+            }
+            let Some(step) = a.cholesky().map(|c| c.solve(&(-&g))) else {
+                lambda *= 10.0;
+                continue;
+            };
+            let trial: Vec<f64> = p.iter().zip(step.iter()).map(|(a, b)| a + b).collect();
+            if trial.iter().all(|v| v.abs() < 20.0)
+                && let Some(rt) = residual(&trial)
+                && rt.norm_squared().is_finite()
+                && rt.norm_squared() < cost
+            {
+                let c = rt.norm_squared();
+                let gain = (cost - c) / cost.max(f64::MIN_POSITIVE);
+                (p, r, cost) = (trial, rt, c);
+                lambda = (lambda / 3.0).max(1e-12);
+                improved = gain > 1e-14;
+                break;
+            }
+            lambda *= 4.0;
+        }
+        if !improved {
+            break;
+        }
+    }
+    Some(p)
 }
 
 /// Transmissibility in dB at a frequency or over a band (negative = isolation).
