@@ -84,3 +84,25 @@ pub fn tapmodes(args: &[&str]) -> (i32, String, String) {
         String::from_utf8_lossy(&out.stderr).into_owned(),
     )
 }
+
+/// The app, headless, on a simulated bench preset with taps on the simulator's schedule
+/// (0.8 s, then every ~2.5 s): a `length` s stream of which the first `seconds` are read.
+pub fn demo_app(
+    preset_name: &str,
+    length: f64,
+    seconds: f64,
+    dir: &std::path::Path,
+) -> tapmodes::tui::App {
+    let launch = tapmodes::tui::Launch::simulated(
+        preset_name,
+        1,
+        Some(length),
+        true,
+        false,
+        dir.to_path_buf(),
+    )
+    .unwrap();
+    let mut app = tapmodes::tui::App::headless(launch).unwrap();
+    app.pump_seconds(seconds);
+    app
+}

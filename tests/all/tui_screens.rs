@@ -22,18 +22,7 @@ fn scratch(name: &str) -> PathBuf {
 
 /// A demo preset with taps on the simulator's schedule (0.8 s, then every ~2.5 s).
 fn demo(preset_name: &str, seconds: f64, dir: &Path) -> App {
-    let launch = Launch::simulated(
-        preset_name,
-        1,
-        Some(seconds),
-        true,
-        false,
-        dir.to_path_buf(),
-    )
-    .unwrap();
-    let mut app = App::headless(launch).unwrap();
-    app.pump_seconds(seconds);
-    app
+    crate::common::demo_app(preset_name, seconds, seconds, dir)
 }
 
 /// Screen text with borders and line breaks turned into blanks, blanks collapsed.

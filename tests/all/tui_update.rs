@@ -20,11 +20,7 @@ fn demo(seconds: f64, dir: &Path) -> App {
 
 /// A `length` s stream of which the first `seconds` are read.
 fn demo_of(length: f64, seconds: f64, dir: &Path) -> App {
-    let launch =
-        Launch::simulated("tm9-arm-solid", 1, Some(length), true, false, dir.into()).unwrap();
-    let mut app = App::headless(launch).unwrap();
-    app.pump_seconds(seconds);
-    app
+    crate::common::demo_app("tm9-arm-solid", length, seconds, dir)
 }
 
 /// The demo arm without scheduled taps: taps only by key or the app's auto-tap.

@@ -19,18 +19,7 @@ fn scratch(name: &str) -> PathBuf {
 }
 
 fn demo(preset_name: &str, seconds: f64, dir: &std::path::Path) -> App {
-    let launch = Launch::simulated(
-        preset_name,
-        1,
-        Some(seconds),
-        true,
-        false,
-        dir.to_path_buf(),
-    )
-    .unwrap();
-    let mut app = App::headless(launch).unwrap();
-    app.pump_seconds(seconds);
-    app
+    crate::common::demo_app(preset_name, seconds, seconds, dir)
 }
 
 fn from_plan(plan: BenchPlan, seconds: f64, dir: &std::path::Path, label: &str) -> App {
