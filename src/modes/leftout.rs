@@ -16,6 +16,9 @@ pub enum LeftOutReason {
     Background,
     /// Narrower than the windows allow a structural peak to be: noise or leakage.
     Spike,
+    /// Response only: a weak peak (under the prominence asked without a coherence) where
+    /// the taps, lined up on their onsets, do not agree well enough to vouch for it.
+    Disagreeing,
 }
 
 impl LeftOutReason {
@@ -25,6 +28,7 @@ impl LeftOutReason {
             LeftOutReason::StationaryLine => "stationary line (there before the taps)",
             LeftOutReason::Background => "not above the background without taps",
             LeftOutReason::Spike => "too narrow for a mode, or width not measurable",
+            LeftOutReason::Disagreeing => "weak, and the taps do not agree there",
         }
     }
 }
@@ -87,6 +91,14 @@ pub(super) fn describe_left_out(out: &mut ModeSearch, cfg: &ModeConfig) {
         out.notes.push(format!(
             "{} peaks with coherence below what noise reaches by chance after {} averages were set aside as noise",
             out.incoherent_peaks, cfg.averages
+        ));
+    }
+    let disagreeing = list(LeftOutReason::Disagreeing);
+    if !disagreeing.is_empty() {
+        out.notes.push(format!(
+            "{} weak peaks (under {:.0} dB prominence) where the taps, each turned to its trigger, do not agree were set aside as noise",
+            disagreeing.len(),
+            cfg.min_prominence_db
         ));
     }
     let spikes = list(LeftOutReason::Spike);

@@ -149,6 +149,10 @@ pub struct SearchContext<'a> {
     /// and its search for merged modes apply where the energy spectrum alone cannot
     /// separate them.
     pub response_complex: Option<&'a [realfft::num_complex::Complex64]>,
+    /// Response only: how well the taps agree at each line once lined up on their onsets
+    /// (see `pipeline::align`), 1 for a shared phase and shape, about 1/N for noise. It
+    /// vouches for weak peaks as the coherence does on an FRF.
+    pub tap_agreement: Option<&'a [f64]>,
 }
 
 /// Damping ratios under this (Q over 1000) are not taken for modes of a frame, arm or
@@ -289,13 +293,20 @@ pub fn search_modes(
         .collect();
     // With one average there is no coherence to test (it is 1 at every line).
     let coherent = curve.coherence.is_some() && cfg.averages != 1;
+    // What vouches for a weak peak: the coherence, or without one the taps' agreement
+    // (three taps at least: with two, half of all noise lines agree better than 0.5).
+    let vouch: Option<&[f64]> = if coherent {
+        curve.coherence.as_deref()
+    } else {
+        ctx.tap_agreement.filter(|_| cfg.averages >= 3)
+    };
     let pick_cfg = ModeConfig {
         min_above_floor_db: if coherent {
             cfg.min_above_floor_coherent_db
         } else {
             cfg.min_above_floor_db
         },
-        min_prominence_db: if coherent {
+        min_prominence_db: if vouch.is_some() {
             cfg.min_prominence_coherent_db
         } else {
             cfg.min_prominence_db
@@ -331,6 +342,19 @@ pub fn search_modes(
         {
             out.incoherent_peaks += 1;
             continue;
+        }
+        if !coherent && p.prominence_db < cfg.min_prominence_db {
+            if vouch.is_some_and(|a| a[p.index] < needed) {
+                out.left_out.push(leave(LeftOutReason::Disagreeing));
+                continue;
+            }
+            // The taps vouch for the peak's phase, not for its width: without a coherence a
+            // weak peak must show its own half-power band before it may seed a band fit.
+            let r = halfpower::refine_peak(freqs, &db, p.index);
+            if halfpower::half_power(freqs, &db, p.index, r.level_db).is_err() {
+                out.left_out.push(leave(LeftOutReason::Spike));
+                continue;
+            }
         }
         // With an exponential window every structural peak is at least as wide as the
         // window's own half-power band, 1/(pi tau) Hz (its pole moved by 1/tau). A peak

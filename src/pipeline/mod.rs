@@ -2,6 +2,7 @@
 
 use crate::error::Result;
 use crate::hits::{CheckConfig, Hit, HitDetector, TriggerConfig, TriggerLevel, Verdict};
+pub mod align;
 pub mod offload;
 pub mod result;
 

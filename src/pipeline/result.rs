@@ -132,12 +132,13 @@ impl Analysis {
             ..self.cfg.modes.clone()
         };
         let aligned = (basis == Basis::Autospectrum)
-            .then(|| self.aligned_response(spectra))
+            .then(|| self.aligned_taps(spectra, cfg.band_hz))
             .flatten();
         let ctx = SearchContext {
             background: (spectra.background_records > 0)
                 .then(|| (&spectra.background_esd[..], &spectra.response_esd[..])),
-            response_complex: aligned.as_deref(),
+            response_complex: aligned.as_ref().map(|a| &a.mean[..]),
+            tap_agreement: aligned.as_ref().map(|a| &a.agreement[..]),
         };
         if spectra.background_records == 0 {
             notes.push(
@@ -168,7 +169,7 @@ impl Analysis {
             if basis == Basis::Autospectrum {
                 // Each tap's phase about its trigger, so modes the band fit read on the mean
                 // complex spectrum are refitted tap by tap like an FRF's.
-                let turn = self.onset_turn(spectra);
+                let turn = super::align::turn_to(&spectra.freqs, self.trigger_time());
                 for (c, h) in curves.iter_mut().zip(&hit_spectra) {
                     c.phase_deg = Some(
                         (h.response.iter().zip(&turn))
@@ -200,37 +201,23 @@ impl Analysis {
         found
     }
 
-    /// Response only: the mean of the accepted taps' complex response spectra (those kept
-    /// for the uncertainty, up to 16), each multiplied by `e^(j w t_trig)` with `t_trig` the
-    /// trigger's time in its record, so that the time origin is the tap and the structure's
-    /// decaying response reads as a sum of poles. What is left of each tap's delay behind its
-    /// trigger (a fraction of a millisecond) turns the phase slowly; the band fit's complex
-    /// residues and residual terms take it up over a band. `None` with fewer than two taps.
-    fn aligned_response(&self, spectra: &Spectra) -> Option<Vec<realfft::num_complex::Complex64>> {
-        use realfft::num_complex::Complex64;
+    /// Response only: the accepted taps (those kept for the uncertainty, up to 16) turned
+    /// to their triggers (see `align`): their mean complex spectrum and the agreement per
+    /// line. `None` with fewer than two taps.
+    fn aligned_taps(
+        &self,
+        spectra: &Spectra,
+        band: (f64, f64),
+    ) -> Option<super::align::AlignedTaps> {
         let hits = self.accepted_hit_spectra();
-        if hits.len() < 2 {
-            return None;
-        }
-        let turn = self.onset_turn(spectra);
-        let mut sum = vec![Complex64::new(0.0, 0.0); turn.len()];
-        for h in &hits {
-            for ((s, x), r) in sum.iter_mut().zip(&h.response).zip(&turn) {
-                *s += x * r;
-            }
-        }
-        let k = hits.len() as f64;
-        Some(sum.into_iter().map(|s| s / k).collect())
+        let taps: Vec<&[realfft::num_complex::Complex64]> =
+            hits.iter().map(|h| &h.response[..]).collect();
+        super::align::align(&spectra.freqs, &taps, self.trigger_time(), band)
     }
 
-    /// `e^(j w t_trig)` per line: moves a record's time origin to its trigger.
-    fn onset_turn(&self, spectra: &Spectra) -> Vec<realfft::num_complex::Complex64> {
-        let t = self.detector.pretrigger_len() as f64 / self.info.sample_rate;
-        (spectra.freqs.iter())
-            .map(|f| {
-                realfft::num_complex::Complex64::from_polar(1.0, 2.0 * std::f64::consts::PI * f * t)
-            })
-            .collect()
+    /// The trigger's time in a record (s): the pre-trigger length.
+    fn trigger_time(&self) -> f64 {
+        self.detector.pretrigger_len() as f64 / self.info.sample_rate
     }
 
     /// The band the modes are searched in. A given band is used as is; without an upper

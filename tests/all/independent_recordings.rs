@@ -62,7 +62,7 @@ fn analyse(name: &str) -> (Analysis, ModeSearch, f64) {
     let fs = src.info().sample_rate;
     let roles = RoleChoice::default().resolve(src.info()).unwrap();
     let a = analyse_source(&mut src, roles, AnalysisConfig::default(), false).unwrap();
-    let found = a.search(&a.spectra());
+    let found = a.result().search.clone();
     (a, found, fs)
 }
 
@@ -341,6 +341,48 @@ fn response_only_twist_mode_and_its_weak_neighbour_on_a_mems_board() {
 }
 
 #[test]
+fn weak_peaks_the_taps_agree_on_are_modes_without_a_hammer_sensor() {
+    // Without a hammer sensor there is no coherence, and a peak under 6 dB of prominence
+    // used to be dropped however steady it was from tap to tap. On the MEMS frame recording
+    // the 148.3 Hz arm mode stands about 5 dB out of its neighbours (after the weighting to
+    // velocity): the taps, each turned to its trigger, agree there (agreement over 0.9, the
+    // chance level of 6 taps being 0.75), so it is listed, and with it as a seed the band
+    // fit resolves the four merged modes at 531-650 Hz. All nine target modes are found
+    // (within half the half-power bandwidth of the FE values) and none is stray.
+    let name = "tm9-frame-mems-3k2";
+    let t = truth(name);
+    let (_, found, _) = analyse(name);
+    for &f_true in &t.targets {
+        let z_true = t.modes.iter().find(|m| m.0 == f_true).unwrap().1;
+        let (f, _) = nearest(&found, f_true);
+        assert!(
+            rel(f, f_true) < 0.5 * z_true,
+            "{f_true} Hz: nearest {f}; {:?}",
+            found.modes
+        );
+    }
+    let weak = (found.modes.iter())
+        .find(|m| rel(m.frequency_hz, 148.3) < 0.007)
+        .unwrap();
+    assert!(weak.prominence_db < 6.0, "{weak:?}");
+    for m in &found.modes {
+        assert!(
+            t.modes.iter().any(|(f, _)| rel(m.frequency_hz, *f) < 0.02),
+            "stray {m:?}"
+        );
+    }
+    // On the piezo tube the weak peaks in the noise are set aside, and said so.
+    let (_, tube, _) = analyse("tube-cantilever-48k-mono");
+    assert!(
+        tube.notes
+            .iter()
+            .any(|n| n.contains("weak peaks") && n.contains("do not agree")),
+        "{:?}",
+        tube.notes
+    );
+}
+
+#[test]
 fn a_stack_on_real_grommets_gets_two_mount_modes_and_a_doubtful_fit() {
     // Viscoelastic grommets (a standard linear solid, loss factor about 0.19) and two
     // mount modes, bounce at 97 Hz and pitch at 176 Hz (the FE model's modes): one mount
@@ -464,26 +506,37 @@ fn accuracy_table() {
         let a = analyse_source(&mut src, roles, AnalysisConfig::default(), false).unwrap();
         let r = a.result();
         let modes = r.modes();
+        // What the tool reports: the mode list, and the mount modes of the soft-mount fit
+        // (marked "m"; a stack's bounce and pitch are read on the transmissibility).
+        let mut reported: Vec<(f64, Option<f64>, &str)> = (modes.iter())
+            .map(|m| (m.frequency_hz, m.damping_ratio, ""))
+            .collect();
+        if let Some(mount) = r.mount.as_ref() {
+            reported.push((mount.natural_frequency_hz, Some(mount.damping_ratio), " m"));
+            if let Some(second) = mount.second.as_ref() {
+                reported.push((
+                    second.natural_frequency_hz,
+                    Some(second.damping_ratio),
+                    " m",
+                ));
+            }
+        }
         let (mut found, mut fe, mut ze) = (0, vec![], vec![]);
         for (f_true, z_true) in t.modes.iter().filter(|m| t.targets.contains(&m.0)) {
-            // Found: a reported mode within a quarter of the half-power bandwidth... or 1 %.
+            // Found: a reported mode within half the half-power bandwidth, or 0.5 %.
             let tol = (0.5 * z_true).max(0.005) * f_true;
-            let Some(m) = modes
+            let Some(&(f_found, z_found, mark)) = reported
                 .iter()
-                .filter(|m| (m.frequency_hz - f_true).abs() < tol)
-                .min_by(|a, b| {
-                    (a.frequency_hz - f_true)
-                        .abs()
-                        .total_cmp(&(b.frequency_hz - f_true).abs())
-                })
+                .filter(|m| (m.0 - f_true).abs() < tol)
+                .min_by(|a, b| (a.0 - f_true).abs().total_cmp(&(b.0 - f_true).abs()))
             else {
                 continue;
             };
             found += 1;
-            let e = 100.0 * (m.frequency_hz - f_true) / f_true;
-            fe.push(format!("{e:+.3}"));
-            let zr = m.damping_ratio.map(|z| 100.0 * (z - z_true) / z_true);
-            ze.push(zr.map_or("-".into(), |v| format!("{v:+.1}")));
+            let e = 100.0 * (f_found - f_true) / f_true;
+            fe.push(format!("{e:+.3}{mark}"));
+            let zr = z_found.map(|z| 100.0 * (z - z_true) / z_true);
+            ze.push(zr.map_or("-".into(), |v| format!("{v:+.1}{mark}")));
             let (fv, zv) = if roles.force.is_some() {
                 (&mut f_force, &mut z_force)
             } else {
