@@ -97,7 +97,7 @@ pub(super) fn compare_mounts(
     // A poor fit is like a flagged mode: a change beyond the floor is doubtful, not real.
     let poor: Vec<String> = [(ma, &base.variant.label), (mb, &run.variant.label)]
         .iter()
-        .filter(|(m, _)| !(m.error <= DOUBTFUL_ERROR))
+        .filter(|(m, _)| m.error > DOUBTFUL_ERROR || m.error.is_nan())
         .map(|(m, l)| format!("'{l}' leaves {:.0} %", 100.0 * m.error))
         .collect();
     if !poor.is_empty() {
