@@ -45,7 +45,7 @@ pub struct CompareArgs {
     #[arg(long, value_name = "HZ|LO:HI", value_parser = super::args::parse_freq_or_band)]
     pub isolation: Option<(f64, f64)>,
     /// Predicted modes to check each run against: CSV with frequency_hz and optional label
-    /// and damping_ratio (or damping_pct) columns.
+    /// and damping_ratio (or damping_pct, not both) columns; one row per predicted mode.
     #[arg(long, value_name = "FILE.csv")]
     pub predicted: Option<PathBuf>,
     /// Print the comparison as JSON instead of a table.
