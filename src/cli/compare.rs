@@ -16,8 +16,9 @@ use std::path::PathBuf;
 /// spread and a repeatability floor.
 #[derive(Debug, Args)]
 pub struct CompareArgs {
-    /// Mode lists (run JSON files); the first is the baseline.
-    #[arg(required = true, num_args = 2.., value_name = "RUN.json")]
+    /// Mode lists (run JSON files), at least two; the first is the baseline. Options may
+    /// stand between them.
+    #[arg(num_args = 1.., value_name = "RUN.json")]
     pub runs: Vec<PathBuf>,
     /// Largest frequency shift for two modes to be paired, in percent.
     #[arg(long, alias = "tolerance", default_value_t = 100.0 * DEFAULT_MAX_SHIFT, value_name = "PCT")]
@@ -44,7 +45,7 @@ pub struct CompareArgs {
     #[arg(long, value_name = "HZ|LO:HI", value_parser = super::args::parse_freq_or_band)]
     pub isolation: Option<(f64, f64)>,
     /// Predicted modes to check each run against: CSV with frequency_hz and optional label
-    /// and damping_ratio (or damping_pct) columns.
+    /// and damping_ratio (or damping_pct, not both) columns; one row per predicted mode.
     #[arg(long, value_name = "FILE.csv")]
     pub predicted: Option<PathBuf>,
     /// Print the comparison as JSON instead of a table.
@@ -92,6 +93,15 @@ fn percent(v: f64, what: &str, max: f64) -> Result<f64> {
 }
 
 pub fn run(a: &CompareArgs) -> Result<()> {
+    if a.runs.len() < 2 {
+        crate::fail!(
+            "compare needs at least two run files, a baseline and a variant, but {} given",
+            match a.runs.len() {
+                0 => "none was".to_string(),
+                n => format!("only {n} was"),
+            }
+        );
+    }
     let runs = a
         .runs
         .iter()

@@ -255,6 +255,7 @@ impl RunFile {
             );
         }
         validate::check_analysis(&self.analysis_config(), &info, &s.roles, &what)?;
+        validate::check_mass(self.variant.mass_g, &what)?;
         for (i, m) in self.modes.iter().enumerate() {
             let ok = m.frequency_hz.is_finite()
                 && m.frequency_hz > 0.0

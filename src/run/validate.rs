@@ -237,6 +237,17 @@ fn check_modes(m: &ModeConfig, fs: f64, what: &str) -> Result<()> {
     Ok(())
 }
 
+/// The part's mass, when given: a positive, finite number of grams (it divides the
+/// stiffness ratio).
+pub fn check_mass(mass_g: Option<f64>, what: &str) -> Result<()> {
+    match mass_g {
+        Some(m) if !(m.is_finite() && m > 0.0) => Err(Error::new(format!(
+            "{what}: the mass (variant.mass_g) must be a positive number of grams, not {m}"
+        ))),
+        _ => Ok(()),
+    }
+}
+
 fn positive(v: f64, name: &str, what: &str) -> Result<()> {
     if !(v.is_finite() && v > 0.0) {
         return Err(Error::new(format!(
@@ -370,6 +381,20 @@ mod tests {
         assert!(check_record(48_000, 17, 2, "t").is_err());
         assert!(check_record(u64::MAX / 4, 2, 2, "t").is_err());
         assert!(check_record(1 << 22, 16, 32, "t").is_err());
+    }
+
+    #[test]
+    fn masses() {
+        assert!(check_mass(None, "t").is_ok());
+        assert!(check_mass(Some(36.5), "t").is_ok());
+        for bad in [0.0, -3.0, f64::NAN, f64::INFINITY, f64::NEG_INFINITY] {
+            let e = check_mass(Some(bad), "run file 'a.json'").unwrap_err();
+            assert!(
+                e.message()
+                    .starts_with("run file 'a.json': the mass (variant.mass_g)"),
+                "{e}"
+            );
+        }
     }
 
     #[test]

@@ -162,3 +162,144 @@ fn predictions_are_checked_mode_by_mode() {
     }
     assert_eq!(holed["not_seen"][0]["label"], "plate");
 }
+
+/// A copy of a demo run file with its JSON changed by `edit`, in `dir`.
+fn edited(dir: &std::path::Path, name: &str, edit: impl Fn(&mut serde_json::Value)) -> String {
+    let mut v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(rec(name)).unwrap()).unwrap();
+    edit(&mut v);
+    let p = dir.join(format!(
+        "edited-{}",
+        std::fs::read_dir(dir).unwrap().count()
+    ));
+    let p = p.with_extension("json");
+    std::fs::write(&p, serde_json::to_string(&v).unwrap()).unwrap();
+    p.to_string_lossy().into_owned()
+}
+
+#[test]
+fn a_mass_that_is_not_positive_is_refused_naming_the_file() {
+    let dir = temp_dir("compare-bad-mass");
+    for bad in [serde_json::json!(-3), serde_json::json!(0)] {
+        let p = edited(&dir, "arm-braced.json", |v| {
+            v["variant"]["mass_g"] = bad.clone()
+        });
+        one_clear_line(
+            &["compare", &rec("arm-holed.json"), &p],
+            &format!("run file '{p}': the mass (variant.mass_g) must be a positive number"),
+        );
+    }
+}
+
+#[test]
+fn options_may_stand_between_run_files() {
+    let (a, b, c) = (
+        rec("arm-holed.json"),
+        rec("arm-solid.json"),
+        rec("arm-braced.json"),
+    );
+    let (code, out, err) = tapmodes(&["compare", &a, "--json", &b, &c]);
+    assert_eq!(code, 0, "{err}");
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    assert_eq!(v["variants"].as_array().unwrap().len(), 2);
+    let (code, out, err) = tapmodes(&["compare", &a, "--floor", "2", &b]);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("floor: 2.0 % in frequency"), "{out}");
+    one_clear_line(&["compare", &a], "compare needs at least two run files");
+    one_clear_line(&["compare", &a, "--json"], "only 1 was given");
+    one_clear_line(&["compare"], "none was given");
+}
+
+#[test]
+fn long_labels_keep_the_table_within_80_columns() {
+    let dir = temp_dir("compare-long-labels");
+    let long = |n: &str| format!("{n}-with-a-carbon-gusset-and-a-second-brace-at-forty-five-deg");
+    let a = edited(&dir, "arm-holed.json", |v| {
+        v["variant"]["label"] = long("arm-holed").into()
+    });
+    let b = edited(&dir, "arm-braced.json", |v| {
+        v["variant"]["label"] = long("arm-braced").into()
+    });
+    assert!(long("arm-braced").len() >= 67);
+    let drive = rec("tm9.drive");
+    let args: [&str; 9] = [
+        "compare", &a, &b, "--drive", &drive, "--pin", "2=2", "--forbid", "1=2",
+    ];
+    let (code, table, err) = tapmodes(&args);
+    assert_eq!(code, 0, "{err}");
+    for line in table.lines() {
+        assert!(line.chars().count() <= 80, "too wide: {line}\n{table}");
+    }
+    assert!(
+        table.contains("arm-holed-with-a-carbon-gus... -> arm-braced-with-a-carbon-gu..."),
+        "{table}"
+    );
+    assert!(
+        table.contains("--json and --csv keep them whole"),
+        "{table}"
+    );
+    let (code, json, _) = tapmodes(&[&args[..], &["--json"]].concat());
+    assert_eq!(code, 0);
+    let v: serde_json::Value = serde_json::from_str(&json).unwrap();
+    assert_eq!(v["variants"][0]["label"], long("arm-braced"));
+    let (code, csv, _) = tapmodes(&[&args[..], &["--csv"]].concat());
+    assert_eq!(code, 0);
+    assert!(
+        csv.contains(&format!("\n{},mode,", long("arm-braced"))),
+        "{csv}"
+    );
+}
+
+#[test]
+fn repeats_of_one_part_call_nothing_real_and_report_the_floor() {
+    // Two simulated repeats of the holed arm (new noise and tap forces, no remount).
+    let (code, out, err) = tapmodes(&[
+        "compare",
+        "--repeats",
+        &rec("arm-holed.json"),
+        &rec("arm-holed-repeat.json"),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let rows: Vec<&str> = out
+        .lines()
+        .filter(|l| l.trim_start().starts_with(|c: char| c.is_ascii_digit()))
+        .collect();
+    assert_eq!(rows.len(), 4, "{out}");
+    for r in &rows {
+        // Columns: pair, base Hz, var Hz, df %, k eq, k mass, zb %, zv %, then f and z.
+        let verdicts: Vec<&str> = r.split_whitespace().skip(8).take(2).collect();
+        assert_eq!(verdicts.len(), 2, "{r}");
+        assert!(verdicts.iter().all(|v| !v.starts_with("real")), "{r}");
+    }
+    assert!(
+        out.contains("no real frequency change in 4 paired modes"),
+        "{out}"
+    );
+    let flat = out.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(flat.contains("RMS change 0.01 %, largest 0.02 %"), "{out}");
+    assert!(
+        flat.contains("imply a floor of 0.1 % in frequency and 0.4 % in damping"),
+        "{out}"
+    );
+    let (code, json, _) = tapmodes(&[
+        "compare",
+        "--repeats",
+        "--json",
+        &rec("arm-holed.json"),
+        &rec("arm-holed-repeat.json"),
+    ]);
+    assert_eq!(code, 0);
+    let v: serde_json::Value = serde_json::from_str(&json).unwrap();
+    for m in v["variants"][0]["matched"].as_array().unwrap() {
+        assert_ne!(m["frequency_verdict"], "real", "{m}");
+        assert_ne!(m["frequency_verdict"], "real_untested", "{m}");
+    }
+    assert_eq!(
+        v["repeatability"]["implied_floor_frequency_pct"].as_f64(),
+        Some(0.1)
+    );
+    assert_eq!(
+        v["repeatability"]["implied_floor_damping_pct"].as_f64(),
+        Some(0.4)
+    );
+}

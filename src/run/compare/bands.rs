@@ -180,14 +180,20 @@ pub fn compare_bands(
 
 /// The table lines (80 columns).
 pub fn render(b: &BandComparison) -> String {
-    let mut s = format!("motor bands from {}:\n  {}\n", b.drive_from, b.drive);
+    use super::render::{short, wrap};
+    let mut s = wrap(&format!("{}:", b.drive_from), "motor bands from ", "  ");
+    s += &wrap(&b.drive, "  ", "    ");
     for x in &b.bands {
         s += &format!("  {:<12} {:>7.1}-{:.1} Hz\n", x.name, x.hz.0, x.hz.1);
     }
     for v in &b.variants {
-        s += &format!(
-            "{}: modes against the bands, before->after (margin to the nearest edge)\n",
-            v.label
+        s += &wrap(
+            &format!(
+                "{}: modes against the bands, before->after (margin to the nearest edge)",
+                short(&v.label)
+            ),
+            "",
+            "  ",
         );
         s += " pair  f Hz            verdict         margin %      change\n";
         for ch in &v.changes {
@@ -221,7 +227,7 @@ pub fn render(b: &BandComparison) -> String {
         }
     }
     for w in &b.warnings {
-        s += &format!("warning: {w}\n");
+        s += &wrap(w, "warning: ", "  ");
     }
     s += "note: bands are estimates from nameplate values; a verdict is guidance, not a\n      substitute for a careful first hover\n";
     s

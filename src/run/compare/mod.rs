@@ -95,7 +95,8 @@ pub enum Verdict {
     /// Within the repeatability floor.
     WithinFloor,
     /// Beyond the floor, but one of the two estimates is flagged (low coherence, few lines,
-    /// window-dominated, no half-power band, or an overlap without a band fit): not called
+    /// window-dominated, no half-power band, or an overlap without a band fit), or, for a
+    /// mount, one of the two mount fits is poor (`softmount::DOUBTFUL_ERROR`): not called
     /// real.
     Doubtful,
 }

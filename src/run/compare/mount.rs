@@ -1,6 +1,7 @@
 //! The soft mounts of two runs compared like a mode: frequency, damping, isolation.
 
 use super::{CompareOptions, Verdict};
+use crate::modes::softmount::DOUBTFUL_ERROR;
 use crate::run::RunFile;
 use serde::Serialize;
 
@@ -43,6 +44,9 @@ pub struct MountComparison {
     pub isolation: Option<IsolationChange>,
     /// What could not be compared.
     pub note: Option<String>,
+    /// Why the verdicts are `doubtful`: a mount fit leaves more than `DOUBTFUL_ERROR` of the
+    /// transmissibility unexplained, so its frequency and damping are approximate.
+    pub doubt: Option<String>,
 }
 
 pub(super) fn compare_mounts(
@@ -72,6 +76,7 @@ pub(super) fn compare_mounts(
         damping_verdict: None,
         isolation: None,
         note: None,
+        doubt: None,
     };
     let (Some(ma), Some(mb)) = (base.mount.as_ref(), run.mount.as_ref()) else {
         let which = if sa.is_some() {
@@ -89,11 +94,32 @@ pub(super) fn compare_mounts(
     c.frequency_change_pct = Some(df);
     c.stiffness_ratio = Some(r * r);
     c.damping_change = Some(mb.damping_ratio - ma.damping_ratio);
-    // The mount fit stores no hit-to-hit spread: the floors alone decide.
-    c.frequency_verdict = Some(Verdict::judge(df, o.floor_frequency_pct, None));
+    // A poor fit is like a flagged mode: a change beyond the floor is doubtful, not real.
+    let poor: Vec<String> = [(ma, &base.variant.label), (mb, &run.variant.label)]
+        .iter()
+        .filter(|(m, _)| m.error > DOUBTFUL_ERROR || m.error.is_nan())
+        .map(|(m, l)| format!("'{l}' leaves {:.0} %", 100.0 * m.error))
+        .collect();
+    if !poor.is_empty() {
+        c.doubt = Some(format!(
+            "the mount fit of {} of the transmissibility unexplained (more than {:.0} %): the mount's frequency and damping changes are doubtful, not real",
+            poor.join(" and that of "),
+            100.0 * DOUBTFUL_ERROR
+        ));
+    }
+    let judge = |change: f64, floor: f64| {
+        // The mount fit stores no hit-to-hit spread: the floors alone decide.
+        let v = Verdict::judge(change, floor, None);
+        if v != Verdict::WithinFloor && !poor.is_empty() {
+            Verdict::Doubtful
+        } else {
+            v
+        }
+    };
+    c.frequency_verdict = Some(judge(df, o.floor_frequency_pct));
     if ma.damping_ratio > 0.0 {
         let dz = 100.0 * (mb.damping_ratio - ma.damping_ratio) / ma.damping_ratio;
-        c.damping_verdict = Some(Verdict::judge(dz, o.floor_damping_pct, None));
+        c.damping_verdict = Some(judge(dz, o.floor_damping_pct));
     }
     let band = o.isolation_band.or_else(|| {
         base.isolation

@@ -63,8 +63,15 @@ pub fn parse_predictions(text: &str, name: &str) -> Result<Vec<PredictedMode>> {
         fcol = find("frequency_hz");
         lcol = find("label");
         zcol = find("damping_ratio");
+        let zpct_col = find("damping_pct");
+        if zcol.is_some() && zpct_col.is_some() {
+            crate::fail!(
+                "'{name}' line {}: the header has both 'damping_ratio' and 'damping_pct'; keep one of the two",
+                first.0
+            );
+        }
         if zcol.is_none() {
-            zcol = find("damping_pct");
+            zcol = zpct_col;
             zpct = zcol.is_some();
         }
         if fcol.is_none() {
@@ -74,8 +81,23 @@ pub fn parse_predictions(text: &str, name: &str) -> Result<Vec<PredictedMode>> {
             );
         }
     }
+    // Fields a row may have: the header's, or frequency, label and damping without one.
+    let width = if header { first.1.len() } else { 3 };
     let mut out = Vec::new();
+    let mut lines = Vec::new();
     for (line, f) in rows.iter().skip(usize::from(header)) {
+        if f.len() > width {
+            crate::fail!(
+                "'{name}' line {line} has {} fields but {}",
+                f.len(),
+                if header {
+                    format!("the header names {width}")
+                } else {
+                    "a file without a header has at most 3 (frequency, label, damping ratio)"
+                        .to_string()
+                }
+            );
+        }
         let get = |c: Option<usize>| c.and_then(|c| f.get(c)).filter(|s| !s.is_empty());
         let fs =
             get(fcol).ok_or_else(|| Error::new(format!("'{name}' line {line}: no frequency")))?;
@@ -114,9 +136,21 @@ pub fn parse_predictions(text: &str, name: &str) -> Result<Vec<PredictedMode>> {
             label: get(lcol).cloned(),
             damping_ratio: damping,
         });
+        lines.push(*line);
     }
     if out.is_empty() {
         crate::fail!("'{name}' lists no predicted modes");
+    }
+    let mut order: Vec<usize> = (0..out.len()).collect();
+    order.sort_by(|&a, &b| out[a].frequency_hz.total_cmp(&out[b].frequency_hz));
+    for w in order.windows(2) {
+        if out[w[0]].frequency_hz == out[w[1]].frequency_hz {
+            let (l0, l1) = (lines[w[0]].min(lines[w[1]]), lines[w[0]].max(lines[w[1]]));
+            crate::fail!(
+                "'{name}' lines {l0} and {l1} both predict a mode at {} Hz; one prediction per mode (remove or merge the duplicate)",
+                out[w[0]].frequency_hz
+            );
+        }
     }
     out.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
     Ok(out)
@@ -309,6 +343,34 @@ mod tests {
         assert!(e.contains("no predicted modes"), "{e}");
         let e = parse_predictions("-5\n", "p.csv").unwrap_err().to_string();
         assert!(e.contains("'-5'"), "{e}");
+    }
+
+    #[test]
+    fn extra_fields_double_damping_and_duplicates_are_refused() {
+        let one_sentence = |text: &str, needle: &str| {
+            let e = parse_predictions(text, "p.csv").unwrap_err().to_string();
+            assert!(e.contains(needle) && !e.contains('\n'), "{e}");
+        };
+        one_sentence(
+            "frequency_hz,label\n140,bend\n210,twist,0.02\n",
+            "line 3 has 3 fields but the header names 2",
+        );
+        one_sentence("140,bend,0.01,extra\n", "line 1 has 4 fields");
+        one_sentence(
+            "frequency_hz,damping_ratio,damping_pct\n140,0.01,1\n",
+            "both 'damping_ratio' and 'damping_pct'",
+        );
+        one_sentence(
+            "frequency_hz,label\n210,a\n140,b\n140.0,c\n",
+            "lines 3 and 4 both predict a mode at 140 Hz",
+        );
+        // Fewer fields than the header are still fine (an empty damping).
+        assert_eq!(
+            parse_predictions("frequency_hz,label,damping_pct\n140,a\n", "p.csv")
+                .unwrap()
+                .len(),
+            1
+        );
     }
 
     #[test]

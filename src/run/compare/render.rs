@@ -7,27 +7,63 @@ use crate::error::{Error, Result};
 /// Widest line of the table.
 pub const WIDTH: usize = 80;
 
-/// Word-wrap `text` to `WIDTH`, first line prefixed by `first`, the rest by `rest`.
-fn wrap(text: &str, first: &str, rest: &str) -> String {
+/// Longest label the table shows in full; longer ones end in "..." (the JSON and CSV keep
+/// them whole).
+pub const LABEL_CHARS: usize = 30;
+
+/// Word-wrap `text` to `WIDTH`, first line prefixed by `first`, the rest by `rest`. A word
+/// longer than a whole line is cut across lines.
+pub(super) fn wrap(text: &str, first: &str, rest: &str) -> String {
     let mut out = String::new();
     let mut line = first.to_string();
     let mut empty = true;
+    let flush = |out: &mut String, line: &mut String, empty: &mut bool| {
+        *out += line.trim_end();
+        out.push('\n');
+        *line = rest.to_string();
+        *empty = true;
+    };
     for w in text.split_whitespace() {
-        if !empty && line.chars().count() + 1 + w.chars().count() > WIDTH {
-            out += line.trim_end();
-            out.push('\n');
-            line = rest.to_string();
-            empty = true;
+        let mut w: Vec<char> = w.chars().collect();
+        loop {
+            let used = line.chars().count() + usize::from(!empty);
+            if used + w.len() <= WIDTH {
+                if !empty {
+                    line.push(' ');
+                }
+                line.extend(w.iter());
+                empty = false;
+                break;
+            }
+            if !empty {
+                flush(&mut out, &mut line, &mut empty);
+                continue;
+            }
+            let room = WIDTH.saturating_sub(used).max(1);
+            line.extend(w[..room].iter());
+            w.drain(..room);
+            flush(&mut out, &mut line, &mut empty);
+            if w.is_empty() {
+                break;
+            }
         }
-        if !empty {
-            line.push(' ');
-        }
-        line += w;
-        empty = false;
     }
-    out += line.trim_end();
-    out.push('\n');
+    if !empty || out.is_empty() {
+        out += line.trim_end();
+        out.push('\n');
+    }
     out
+}
+
+/// A label cut to `LABEL_CHARS` characters, ending in "..." when cut.
+pub(super) fn short(label: &str) -> String {
+    if label.chars().count() <= LABEL_CHARS {
+        label.to_string()
+    } else {
+        let mut s: String = label.chars().take(LABEL_CHARS - 3).collect();
+        s += "...";
+        s
+    }
 }
 
 fn pct(z: Option<f64>) -> String {
@@ -92,7 +128,13 @@ fn mount_rows(c: &MountComparison, base: &str, var: &str) -> String {
         );
         s += line.trim_end();
         s.push('\n');
-        let poor = |e: f64| if e > 0.3 { " (poor fit)" } else { "" };
+        let poor = |e: f64| {
+            if e <= crate::modes::softmount::DOUBTFUL_ERROR {
+                ""
+            } else {
+                " (poor fit)"
+            }
+        };
         s += &wrap(
             &format!(
                 "mount fit residual {:.2}{} in {base}, {:.2}{} in {var}; isolates above {:.0} -> {:.0} Hz",
@@ -126,6 +168,9 @@ fn mount_rows(c: &MountComparison, base: &str, var: &str) -> String {
             "    ",
         );
     }
+    if let Some(d) = &c.doubt {
+        s += &wrap(d, "  mount doubt: ", "    ");
+    }
     if let Some(n) = &c.note {
         s += &wrap(n, "  mount: ", "    ");
     }
@@ -133,23 +178,35 @@ fn mount_rows(c: &MountComparison, base: &str, var: &str) -> String {
 }
 
 fn variant_block(c: &Comparison, v: &VariantComparison) -> String {
-    let mut s = format!("{} -> {}", c.baseline, v.label);
+    let (base, var) = (short(&c.baseline), short(&v.label));
+    let mut s = format!("{base} -> {var}");
     if let (Some(a), Some(b)) = (c.baseline_mass_g, v.mass_g) {
-        s += &format!("   (mass {a:.1} g -> {b:.1} g)");
+        let mass = format!("(mass {a:.1} g -> {b:.1} g)");
+        if s.chars().count() + 3 + mass.chars().count() <= WIDTH {
+            s += &format!("   {mass}");
+        } else {
+            s += &format!("\n  {mass}");
+        }
     }
     s.push('\n');
+    if base != c.baseline || var != v.label {
+        s += &wrap(
+            &format!(
+                "(labels over {LABEL_CHARS} characters are cut here; --json and --csv keep them whole)"
+            ),
+            "  ",
+            "   ",
+        );
+    }
     s += HEAD;
     s.push('\n');
     for m in &v.matched {
         s += &row(m);
     }
     if let Some(mc) = &v.mount {
-        s += &mount_rows(mc, &c.baseline, &v.label);
+        s += &mount_rows(mc, &base, &var);
     }
-    for (who, list) in [
-        (&c.baseline, &v.unpaired_baseline),
-        (&v.label, &v.unpaired_variant),
-    ] {
+    for (who, list) in [(&base, &v.unpaired_baseline), (&var, &v.unpaired_variant)] {
         for u in list {
             s += &wrap(
                 &format!("mode {} at {:.1} Hz: {}", u.mode, u.frequency_hz, u.reason),
@@ -165,10 +222,10 @@ fn variant_block(c: &Comparison, v: &VariantComparison) -> String {
             .join(", ")
     };
     if !v.pins.is_empty() {
-        s += &format!("  pinned by the user: {}\n", rules(&v.pins));
+        s += &wrap(&rules(&v.pins), "  pinned by the user: ", "    ");
     }
     if !v.forbids.is_empty() {
-        s += &format!("  forbidden by the user: {}\n", rules(&v.forbids));
+        s += &wrap(&rules(&v.forbids), "  forbidden by the user: ", "    ");
     }
     for w in &v.warnings {
         s += &wrap(w, "  warning: ", "    ");
@@ -275,6 +332,10 @@ pub fn render_table(c: &Comparison) -> String {
     s += "    real* = beyond the floor, no spread stored; spread = within the\n";
     s += "    hit-to-hit spread; floor = within the repeatability floor; doubt =\n";
     s += "    beyond the floor but a flagged estimate (low coherence, few lines...)\n";
+    s += &format!(
+        "    or a mount fit residual above {:.2} (poor fit)\n",
+        crate::modes::softmount::DOUBTFUL_ERROR
+    );
     s += &wrap(
         &format!(
             "floor: {:.1} % in frequency, {:.0} % of the damping ratio ({}); pairs within {:.0} % of each other",
@@ -373,6 +434,20 @@ pub fn render_csv(c: &Comparison) -> Result<String> {
                 w.write_record(&r).map_err(enc)?;
             }
         }
+        for r in &v.forbids {
+            let mut row = vec![
+                v.label.clone(),
+                "forbidden".into(),
+                r.baseline_mode.to_string(),
+                r.variant_mode.to_string(),
+            ];
+            row.extend(std::iter::repeat_n(String::new(), 13));
+            row.push(format!(
+                "never paired: {} set by the user",
+                super::rule_text("forbid", r)
+            ));
+            w.write_record(&row).map_err(enc)?;
+        }
         if let Some(mc) = &v.mount
             && let (Some(a), Some(b)) = (&mc.baseline, &mc.variant)
         {
@@ -395,12 +470,18 @@ pub fn render_csv(c: &Comparison) -> Result<String> {
                 String::new(),
                 String::new(),
                 String::new(),
-                mc.isolation.as_ref().map_or(String::new(), |i| {
-                    format!(
-                        "transmissibility {:.0}-{:.0} Hz: {:+.2} -> {:+.2} dB (model)",
-                        i.band_hz.0, i.band_hz.1, i.baseline_model_db, i.variant_model_db
-                    )
-                }),
+                mc.isolation
+                    .as_ref()
+                    .map(|i| {
+                        format!(
+                            "transmissibility {:.0}-{:.0} Hz: {:+.2} -> {:+.2} dB (model)",
+                            i.band_hz.0, i.band_hz.1, i.baseline_model_db, i.variant_model_db
+                        )
+                    })
+                    .into_iter()
+                    .chain(mc.doubt.clone())
+                    .collect::<Vec<_>>()
+                    .join("; "),
             ])
             .map_err(enc)?;
         }

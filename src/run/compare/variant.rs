@@ -3,7 +3,7 @@
 use super::matching::{self, Candidate, MatchRules, pair_modes};
 use super::{
     CompareOptions, MatchedMode, MountComparison, PairRule, Rules, Unpaired, VariantComparison,
-    Verdict, mount::compare_mounts, setup_warnings,
+    Verdict, mount::compare_mounts, rule_text, setup_warnings,
 };
 use crate::modes::Mode;
 use crate::run::RunFile;
@@ -119,6 +119,32 @@ pub(super) fn compare_one(
             base.variant.label, run.variant.label
         ));
     }
+    let to_rules = |v: &[(usize, usize)]| -> Vec<PairRule> {
+        v.iter()
+            .map(|&(a, b)| PairRule {
+                run: several.then_some(position),
+                baseline_mode: a + 1,
+                variant_mode: b + 1,
+            })
+            .collect()
+    };
+    let (pins, forbids) = (to_rules(&rules.0), to_rules(&rules.1));
+    // A pin is obeyed whatever its shift, but one beyond the window is said.
+    for r in &pins {
+        let (fa, fb) = (
+            base.modes[r.baseline_mode - 1].frequency_hz,
+            run.modes[r.variant_mode - 1].frequency_hz,
+        );
+        let shift = fb / fa - 1.0;
+        if shift.abs() > o.max_shift {
+            warnings.push(format!(
+                "{} pairs {fa:.1} Hz with {fb:.1} Hz, a shift of {:+.0} %, beyond --max-shift {:.0} %: kept because it is pinned, but check that the two are one mode",
+                rule_text("pin", r),
+                100.0 * shift,
+                100.0 * o.max_shift
+            ));
+        }
+    }
     let matched: Vec<MatchedMode> = pairs
         .iter()
         .map(|p| {
@@ -137,22 +163,20 @@ pub(super) fn compare_one(
                 mode: i + 1,
                 frequency_hz: mine[i].frequency_hz,
                 damping_ratio: mine[i].damping_ratio,
-                reason: unpaired_reason(i, mine, theirs, other, &pairs, side_a, o.max_shift),
+                reason: unpaired_reason(
+                    i,
+                    (mine, theirs, other),
+                    &pairs,
+                    &forbids,
+                    side_a,
+                    o.max_shift,
+                ),
             })
             .collect()
     };
     let unpaired_baseline = unpaired(&base.modes, &run.modes, &run.variant.label, true);
     let unpaired_variant = unpaired(&run.modes, &base.modes, &base.variant.label, false);
     let mount = compare_mounts(base, run, o);
-    let to_rules = |v: &[(usize, usize)]| -> Vec<PairRule> {
-        v.iter()
-            .map(|&(a, b)| PairRule {
-                run: several.then_some(position),
-                baseline_mode: a + 1,
-                variant_mode: b + 1,
-            })
-            .collect()
-    };
     let summary = summary(
         &matched,
         &unpaired_baseline,
@@ -169,8 +193,8 @@ pub(super) fn compare_one(
         mass_g: run.variant.mass_g,
         unpaired_baseline,
         unpaired_variant,
-        pins: to_rules(&rules.0),
-        forbids: to_rules(&rules.1),
+        pins,
+        forbids,
         mount,
         summary,
     }
@@ -220,28 +244,48 @@ pub fn stiffness_ratio(m_a: f64, f_a: f64, m_b: f64, f_b: f64) -> f64 {
     (m_b / m_a) * (f_b / f_a).powi(2)
 }
 
-#[allow(clippy::too_many_arguments)]
+/// Why mode `i` of `mine` has no partner among `theirs` (the run labelled `other`).
 fn unpaired_reason(
     i: usize,
-    mine: &[Mode],
-    theirs: &[Mode],
-    other: &str,
+    (mine, theirs, other): (&[Mode], &[Mode], &str),
     pairs: &[matching::Pair],
+    forbids: &[PairRule],
     side_a: bool,
     max_shift: f64,
 ) -> String {
+    if theirs.is_empty() {
+        return format!("'{other}' has no modes");
+    }
     let f = mine[i].frequency_hz;
     let shift = |g: f64| if side_a { g / f - 1.0 } else { f / g - 1.0 };
-    let near = (0..theirs.len())
-        .filter(|&j| shift(theirs[j].frequency_hz).abs() <= max_shift)
-        .min_by(|&x, &y| {
-            (theirs[x].frequency_hz / f)
-                .ln()
-                .abs()
-                .total_cmp(&(theirs[y].frequency_hz / f).ln().abs())
-        });
+    let within = |j: usize| shift(theirs[j].frequency_hz).abs() <= max_shift;
+    // The forbids that kept this mode from a partner within the window: (theirs index, text).
+    let forbidden: Vec<(usize, String)> = forbids
+        .iter()
+        .filter_map(|r| {
+            let (a, b) = (r.baseline_mode - 1, r.variant_mode - 1);
+            let (me, them) = if side_a { (a, b) } else { (b, a) };
+            (me == i && them < theirs.len() && within(them)).then(|| {
+                (
+                    them,
+                    format!(
+                        "forbidden by {} from pairing with mode {} of '{other}' ({:.1} Hz)",
+                        rule_text("forbid", r),
+                        them + 1,
+                        theirs[them].frequency_hz
+                    ),
+                )
+            })
+        })
+        .collect();
+    let near = (0..theirs.len()).filter(|&j| within(j)).min_by(|&x, &y| {
+        (theirs[x].frequency_hz / f)
+            .ln()
+            .abs()
+            .total_cmp(&(theirs[y].frequency_hz / f).ln().abs())
+    });
     let w = 100.0 * max_shift;
-    match near {
+    let general = match near {
         None => format!("no mode of '{other}' within {w:.0} %"),
         Some(j) => {
             let partner = pairs
@@ -256,12 +300,25 @@ fn unpaired_reason(
                     k + 1
                 ),
                 None => format!(
-                    "pairing it with mode {} of '{other}' ({:.1} Hz) costs more than leaving both unpaired (shift, residue sign or a forbid)",
+                    "pairing it with mode {} of '{other}' ({:.1} Hz) costs more than leaving both unpaired ({})",
                     j + 1,
-                    theirs[j].frequency_hz
+                    theirs[j].frequency_hz,
+                    if forbids.is_empty() {
+                        "shift or residue sign"
+                    } else {
+                        "shift, residue sign or another forbid"
+                    }
                 ),
             }
         }
+    };
+    let texts: Vec<String> = forbidden.iter().map(|(_, t)| t.clone()).collect();
+    if texts.is_empty() {
+        general
+    } else if near.is_some_and(|j| forbidden.iter().any(|(k, _)| *k == j)) {
+        texts.join("; ")
+    } else {
+        format!("{}; {general}", texts.join("; "))
     }
 }
 
