@@ -229,8 +229,8 @@ fn phases(path: &std::path::Path) -> Result<Phases> {
     let a = analyse_source(&mut src, roles, AnalysisConfig::default(), false)?;
     let drain = t0.elapsed().as_secs_f64();
     let t0 = Instant::now();
-    let s = a.spectra();
-    let _ = a.modes(&s);
+    let r = a.result();
+    let s = &r.spectra;
     let modes = t0.elapsed().as_secs_f64();
     let rss_kib = peak_rss_kib(false).unwrap_or(0).max(before);
     let n_fft = 2 * (s.freqs.len() - 1);

@@ -100,11 +100,11 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
     let label = a.variant.as_ref().map(|v| validate::clean_text(v, false));
     let cli_note = validate::clean_text(&a.note, true);
     let mut drive = a.drive.drive()?;
-    let (mut analysis, wav, mut variant) = if is_json {
-        let (analysis, wav, saved, saved_drive) = crate::run::reopen::reanalyse(&a.input)?;
-        check_outputs(&out, &[&a.input, &wav])?;
-        drive = drive.or(saved_drive);
-        (analysis, wav, saved)
+    let (mut analysis, wav, mut variant, stored) = if is_json {
+        let r = crate::run::reopen::reopen(&a.input)?;
+        check_outputs(&out, &[&a.input, &r.wav])?;
+        drive = drive.or(r.drive);
+        (r.analysis, r.wav, r.variant, Some((r.encoding, r.gaps)))
     } else {
         let choice = a.channels.role_choice();
         let mut src = open_wav(&a.input, &a.channels, &choice)?;
@@ -136,7 +136,7 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
         if !cli_note.is_empty() {
             variant.note = cli_note.clone();
         }
-        (analysis, a.input.clone(), variant)
+        (analysis, a.input.clone(), variant, None)
     };
     if a.mass.is_some() {
         variant.mass_g = a.mass;
@@ -151,7 +151,21 @@ pub fn run(a: &AnalyzeArgs) -> Result<()> {
         d.check()
             .map_err(|e| e.context(format!("the drive stored in '{}'", out.display())))?;
     }
-    finish(&analysis, variant, &out, &wav, a.hits, drive.as_ref())
+    analysis.set_drive(drive);
+    // A recording made elsewhere is described as opened; a run's own recording as the run
+    // described it (its encoding and lost stretches carry over).
+    let (encoding, gaps) = stored.unwrap_or_else(|| {
+        (
+            crate::run::recording::Encoding::of_external(analysis.info()),
+            Vec::new(),
+        )
+    });
+    let note = crate::run::RecordingNote {
+        wav: &wav,
+        encoding,
+        gaps: &gaps,
+    };
+    finish(&analysis, variant, &out, note, a.hits)
 }
 
 /// The JSON and the CSV beside it must not replace an input, a file of another kind or
@@ -205,10 +219,10 @@ fn finish(
     analysis: &Analysis,
     variant: Variant,
     out: &Path,
-    wav: &Path,
+    note: crate::run::RecordingNote<'_>,
     show_hits: bool,
-    drive: Option<&crate::drive::Drive>,
 ) -> Result<()> {
+    let wav = note.wav;
     let fs = analysis.info().sample_rate;
     let hits = analysis.hits();
     if hits.is_empty() {
@@ -217,17 +231,7 @@ fn finish(
             wav.display()
         );
     }
-    let encoding = if analysis.info().channels.iter().all(|c| c.scale == 1.0) {
-        crate::run::recording::Encoding::AsStored
-    } else {
-        crate::run::recording::Encoding::Counts
-    };
-    let note = crate::run::RecordingNote {
-        wav,
-        encoding,
-        gaps: &[],
-    };
-    let run = write_run_files(analysis, variant, out, Some(note), drive)?;
+    let run = write_run_files(analysis, variant, out, Some(note))?;
     if run
         .recording
         .as_ref()

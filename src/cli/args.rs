@@ -233,6 +233,8 @@ impl AnalysisArgs {
             estimator: self.estimator,
             basis,
             isolation_band: None,
+            // The drive has options of its own (`drive_args`); commands set it on the analysis.
+            drive: None,
         })
     }
 }

@@ -66,6 +66,7 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
     std::fs::create_dir_all(&a.out)
         .with_context(|| format!("cannot create folder '{}'", a.out.display()))?;
     let mut analysis = Analysis::new(&info, opened.roles, cfg, false)?;
+    analysis.set_drive(drive);
     // The WAV is created exclusively: two captures into one folder never share a name.
     let (mut rec, stem) = RecordingWriter::create_fresh(&a.out, &a.variant, &info)?;
     let wav = a.out.join(format!("{stem}.wav"));
@@ -131,13 +132,7 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
                 if accepted_now {
                     // Save as each accepted hit lands: nothing accepted is lost later.
                     let saved_now = rec.flush().and_then(|()| {
-                        write_run_files(
-                            &analysis,
-                            variant.clone(),
-                            &json,
-                            Some(note(&rec, &wav)),
-                            drive.as_ref(),
-                        )
+                        write_run_files(&analysis, variant.clone(), &json, Some(note(&rec, &wav)))
                     });
                     match saved_now {
                         Ok(run) => saved = Some(run),
@@ -191,7 +186,7 @@ pub fn run(a: &CaptureArgs) -> Result<()> {
                 encoding,
                 gaps: &gaps,
             };
-            write_run_files(&analysis, variant, &json, Some(note), drive.as_ref())?
+            write_run_files(&analysis, variant, &json, Some(note))?
         }
     };
     eprintln!(

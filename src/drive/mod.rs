@@ -396,19 +396,25 @@ pub fn verdicts(bands: &Bands, modes: &[Mode]) -> Vec<BandVerdict> {
         .collect()
 }
 
-/// Put the drive into a run: its section (bands, and the mount's isolation when the run has
-/// a base channel) and each mode's verdict.
-pub fn annotate(run: &mut crate::run::RunFile, drive: &Drive, spectra: &crate::spectra::Spectra) {
+/// Judge an analysis against the drive: each mode's verdict goes in its `band`; the drive's
+/// section (its bands, and the mount's isolation over them when there is a base channel and
+/// an accepted hit) comes back. Called once per result by the pipeline.
+pub fn assess(
+    drive: &Drive,
+    modes: &mut [Mode],
+    spectra: &crate::spectra::Spectra,
+    mount: Option<&crate::modes::softmount::MountFit>,
+    has_base: bool,
+) -> DriveSection {
     let bands = drive.bands();
-    let v = verdicts(&bands, &run.modes);
-    for (m, b) in run.modes.iter_mut().zip(v) {
-        m.band = Some(b);
+    for m in modes.iter_mut() {
+        m.band = judge(&bands, m.frequency_hz);
     }
     let mut section = drive.section();
-    if run.setup.roles.base.is_some() && spectra.hits > 0 {
-        section.isolation = isolation::over_bands(&bands, spectra, run.mount.as_ref());
+    if has_base && spectra.hits > 0 {
+        section.isolation = isolation::over_bands(&bands, spectra, mount);
     }
-    run.drive = Some(section);
+    section
 }
 
 #[cfg(test)]

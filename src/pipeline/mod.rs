@@ -59,6 +59,10 @@ pub struct AnalysisConfig {
     /// frequency when both ends are equal).
     #[serde(default)]
     pub isolation_band: Option<(f64, f64)>,
+    /// The motors' drive: each mode gets its band verdict, a soft mount its isolation over
+    /// the bands (see `drive`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub drive: Option<crate::drive::Drive>,
 }
 
 /// What is kept of each hit for the run file and the hit list.
@@ -371,6 +375,8 @@ impl Analysis {
     /// while its record is kept and fewer than `SPREAD_RECORDS` are stored (else they
     /// are given back).
     fn add_hit_spectra(&mut self, index: usize, hs: HitSpectra) -> Option<HitSpectra> {
+        // The average changes: a result computed before it is stale.
+        self.invalidate();
         self.averager.add_spectra(&hs);
         let stored = self.hit_spectra.iter().filter(|h| h.is_some()).count();
         if self.records[index].is_some() && stored < SPREAD_RECORDS {
@@ -391,6 +397,12 @@ impl Analysis {
     pub fn set_isolation_band(&mut self, band: Option<(f64, f64)>) {
         self.invalidate();
         self.cfg.isolation_band = band;
+    }
+
+    /// Judge the modes against this drive's bands from now on (see `AnalysisConfig`).
+    pub fn set_drive(&mut self, drive: Option<crate::drive::Drive>) {
+        self.invalidate();
+        self.cfg.drive = drive;
     }
 
     /// Operator decision on hit `index` (0-based): accept or drop, then re-average.

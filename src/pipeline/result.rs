@@ -23,6 +23,9 @@ pub struct AnalysisResult {
     pub mount: Option<MountFit>,
     /// Isolation over the band the user asked for (`AnalysisConfig::isolation_band`).
     pub isolation: Option<Isolation>,
+    /// With a drive (`AnalysisConfig::drive`): its bands and, for a soft mount, the
+    /// isolation over them; each mode's verdict is in its `band`.
+    pub drive: Option<crate::drive::DriveSection>,
     /// Every sentence the reader should see: what was dropped or is doubtful, and why.
     pub notes: Vec<String>,
 }
@@ -55,8 +58,17 @@ impl Analysis {
         let spectra = self.spectra();
         let basis = self.basis();
         let curve = (spectra.hits > 0).then(|| spectra.curve(basis)).flatten();
-        let search = self.search(&spectra);
+        let mut search = self.search(&spectra);
         let mount = (spectra.hits > 0).then(|| self.mount(&spectra)).flatten();
+        let drive = self.cfg.drive.as_ref().map(|d| {
+            crate::drive::assess(
+                d,
+                &mut search.modes,
+                &spectra,
+                mount.as_ref(),
+                self.roles.base.is_some(),
+            )
+        });
         let isolation = self
             .cfg
             .isolation_band
@@ -101,19 +113,15 @@ impl Analysis {
             search,
             mount,
             isolation,
+            drive,
             notes,
         }
-    }
-
-    /// Modes on the current basis (see `search`).
-    pub fn modes(&self, spectra: &Spectra) -> Vec<Mode> {
-        self.search(spectra).modes
     }
 
     /// The mode search on the current basis (empty before the first accepted hit): modes
     /// with their hit-to-hit uncertainty (ring-down damping for response-only runs), the
     /// peaks set aside, and notes on what is doubtful.
-    pub fn search(&self, spectra: &Spectra) -> ModeSearch {
+    pub(super) fn search(&self, spectra: &Spectra) -> ModeSearch {
         let nothing = ModeSearch {
             band_hz: self.cfg.modes.band_hz,
             ..ModeSearch::default()
@@ -228,7 +236,7 @@ impl Analysis {
     /// 20 dB down; common practice, no source). Where the FRF is still coherent there
     /// (a sensitive sensor, a quiet room), the band goes on as long as it stays coherent,
     /// down to `FORCE_BAND_MAX_DB`.
-    pub fn band(&self, spectra: &Spectra, notes: &mut Vec<String>) -> (f64, f64) {
+    pub(super) fn band(&self, spectra: &Spectra, notes: &mut Vec<String>) -> (f64, f64) {
         let (lo, hi) = self.cfg.modes.band_hz;
         if !self.cfg.modes.band_from_data || !matches!(self.basis(), Basis::Frf(_)) {
             return (lo, hi);
@@ -291,7 +299,7 @@ impl Analysis {
     }
 
     /// The soft mount read from the transmissibility, when there is a base channel.
-    pub fn mount(&self, spectra: &Spectra) -> Option<crate::modes::softmount::MountFit> {
+    pub(super) fn mount(&self, spectra: &Spectra) -> Option<crate::modes::softmount::MountFit> {
         let curve = spectra.curve(Basis::Transmissibility)?;
         crate::modes::softmount::fit_mount(&spectra.freqs, &curve, None, spectra.tau_s)
     }
@@ -351,5 +359,32 @@ mod tests {
         assert_eq!(after.spectra.hits, first.spectra.hits - 1);
         // What the run file and the app show is this value, not a second computation.
         assert_eq!(after.search, a.search(&a.spectra()));
+    }
+
+    /// The band verdicts are part of the one result: every mode carries its verdict and the
+    /// result the drive's section; a new drive makes a new result, no drive none.
+    #[test]
+    fn band_verdicts_are_part_of_the_result() {
+        let mut sim = Simulator::new(preset("tm9-arm-solid", 3).unwrap(), Some(8.0), true);
+        let roles = RoleChoice::default().resolve(sim.info()).unwrap();
+        let mut a = analyse_source(&mut sim, roles, AnalysisConfig::default(), true).unwrap();
+        let plain = a.result();
+        assert!(plain.drive.is_none() && plain.modes().iter().all(|m| m.band.is_none()));
+        let drive = crate::drive::Drive::from_rpm((6000.0, 18000.0), 3).unwrap();
+        a.set_drive(Some(drive.clone()));
+        let judged = a.result();
+        assert!(!Arc::ptr_eq(&plain, &judged));
+        let section = judged.drive.as_ref().expect("the drive's section");
+        assert_eq!(section.description, drive);
+        assert!(!judged.modes().is_empty());
+        for m in judged.modes() {
+            let b = m.band.as_ref().expect("a verdict per mode");
+            // 6000-18000 rpm: rotation 100-300 Hz, its harmonics and blade pass above.
+            let inside = (section.bands.iter())
+                .any(|band| (band.hz.0..=band.hz.1).contains(&m.frequency_hz));
+            assert_eq!(b.verdict == crate::drive::Verdict::Inside, inside, "{m:?}");
+        }
+        a.set_drive(None);
+        assert!(a.result().modes().iter().all(|m| m.band.is_none()));
     }
 }

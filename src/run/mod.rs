@@ -170,7 +170,7 @@ impl RunFile {
             frf_csv: None,
             mount: result.mount.clone(),
             isolation: result.isolation.clone(),
-            drive: None,
+            drive: result.drive.clone(),
             notes: result.notes.clone(),
             left_out: found.left_out.clone(),
             incoherent_peaks: found.incoherent_peaks,
@@ -307,6 +307,7 @@ impl RunFile {
             estimator: s.estimator,
             basis: Some(s.basis),
             isolation_band: self.isolation.as_ref().map(|i| i.band_hz),
+            drive: self.drive.as_ref().map(|d| d.description.clone()),
         }
     }
 
@@ -439,16 +440,15 @@ pub fn format_utc(secs: u64) -> String {
 }
 
 /// Write the mode list (JSON) and the curve (CSV, same stem) for an analysis. The JSON
-/// names its recording and CSV by paths relative to itself. With a drive, the modes get
-/// their band verdicts and the run its drive section.
+/// names its recording and CSV by paths relative to itself. With a drive in the analysis'
+/// configuration, the modes carry their band verdicts and the run its drive section.
 pub fn write_run_files(
     analysis: &Analysis,
     variant: Variant,
     json_path: &Path,
     recording: Option<RecordingNote<'_>>,
-    drive: Option<&crate::drive::Drive>,
 ) -> Result<RunFile> {
-    RunFiles::of(analysis, variant, drive).write(json_path, recording)
+    RunFiles::of(analysis, variant).write(json_path, recording)
 }
 
 /// A run's JSON and CSV content computed from an analysis (the spectra and the mode search
@@ -463,18 +463,11 @@ pub struct RunFiles {
 }
 
 impl RunFiles {
-    /// Render the analysis' one result (computed once, see `pipeline::AnalysisResult`) and
-    /// the drive's band verdicts into run-file content.
-    pub fn of(
-        analysis: &Analysis,
-        variant: Variant,
-        drive: Option<&crate::drive::Drive>,
-    ) -> RunFiles {
+    /// Render the analysis' one result (computed once, see `pipeline::AnalysisResult`) into
+    /// run-file content.
+    pub fn of(analysis: &Analysis, variant: Variant) -> RunFiles {
         let result = analysis.result();
-        let mut run = RunFile::from_analysis(analysis, &result, variant);
-        if let Some(d) = drive {
-            crate::drive::annotate(&mut run, d, &result.spectra);
-        }
+        let run = RunFile::from_analysis(analysis, &result, variant);
         let curve = result
             .curve
             .clone()

@@ -55,6 +55,16 @@ impl Encoding {
         }
     }
 
+    /// A recording made elsewhere, as opened: converter codes when any channel has a scale
+    /// (the user calibrated it), else values as stored.
+    pub fn of_external(info: &crate::signal::StreamInfo) -> Encoding {
+        if info.channels.iter().all(|c| c.scale == 1.0) {
+            Encoding::AsStored
+        } else {
+            Encoding::Counts
+        }
+    }
+
     /// True when the samples are converter codes that the channel scales turn into values.
     pub fn is_counts(self) -> bool {
         matches!(self, Encoding::Counts16 | Encoding::Counts)

@@ -8,11 +8,32 @@ use crate::source::Source;
 use crate::source::wav::WavSource;
 use std::path::{Path, PathBuf};
 
+/// A saved run analysed again, with what a new run file of it must carry over.
+pub struct Reopened {
+    pub analysis: Analysis,
+    /// The recording's path.
+    pub wav: PathBuf,
+    pub variant: Variant,
+    /// The drive stored with the run (also in the analysis' configuration).
+    pub drive: Option<crate::drive::Drive>,
+    /// How the recording holds its samples and the stretches lost before it, as the run
+    /// recorded them (a new run file of the same recording says the same).
+    pub encoding: super::recording::Encoding,
+    pub gaps: Vec<(u64, u64)>,
+}
+
+/// Re-run a saved run (see `reopen`): the analysis, the recording's path, the variant and
+/// the stored drive.
+pub fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
+    let r = reopen(json)?;
+    Ok((r.analysis, r.wav, r.variant, r.drive))
+}
+
 /// Re-run a saved run: same recording, same settings, same operator verdicts. The run
 /// file is checked like command-line settings, its recording must lie in its folder and
 /// match it (channels, rate, length), and the recording's own calibration and full scale
 /// are taken from the run, so re-analysis reproduces the capture.
-pub fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crate::drive::Drive>)> {
+pub fn reopen(json: &Path) -> Result<Reopened> {
     let saved = RunFile::load(json)?;
     let shown = json.display();
     let wav = saved
@@ -65,6 +86,11 @@ pub fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crat
         }
         src.skip_gaps(&r.gaps);
     }
+    let encoding = rec.map_or_else(
+        || super::recording::Encoding::of_external(src.info()),
+        |r| r.encoding,
+    );
+    let gaps = rec.map(|r| r.gaps.clone()).unwrap_or_default();
     let cfg = saved.analysis_config();
     let mut analysis = Analysis::new(&src.info().clone(), s.roles, cfg, true)?;
     analysis.set_disarmed(saved.disarmed.clone());
@@ -75,7 +101,14 @@ pub fn reanalyse(json: &Path) -> Result<(Analysis, PathBuf, Variant, Option<crat
         d.check()
             .map_err(|e| e.context(format!("the drive stored in '{}'", json.display())))?;
     }
-    Ok((analysis, wav, saved.variant, drive))
+    Ok(Reopened {
+        analysis,
+        wav,
+        variant: saved.variant,
+        drive,
+        encoding,
+        gaps,
+    })
 }
 
 #[cfg(test)]

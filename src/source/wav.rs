@@ -23,15 +23,17 @@ pub struct WavSource {
     name: String,
     reader: Box<dyn WavInput>,
     kind: SampleKind,
-    data_offset: u64,
     bytes: Vec<u8>,
     info: StreamInfo,
     frames_total: u64,
     next: u64,
     block: usize,
-    /// Stretches of the file (start frame, length) that were lost on the way and stored
-    /// as filler: skipped, so blocks show them as gaps in `start`.
+    /// Stretches lost before they reached the file (the file frame where the stream jumps,
+    /// frames lost): the file holds only what arrived, so at each the blocks' `start`
+    /// jumps ahead by the frames lost.
     gaps: Vec<(u64, u64)>,
+    /// Frames lost before `next` (stream position = file frame + shift).
+    shift: u64,
     /// Optional real-time pacing: the wall-clock start and the rate to keep.
     pace: Option<std::time::Instant>,
     /// Frames read past the header's count (a recording cut off before its header was
@@ -93,11 +95,11 @@ impl WavSource {
             name: name.to_string(),
             reader,
             kind: h.kind,
-            data_offset: h.data_offset,
             frames_total: h.frames,
             next: 0,
             block: WAV_BLOCK,
             gaps: Vec::new(),
+            shift: 0,
             pace: None,
             past_header: h.past_header,
             header_frames: h.frames - h.past_header,
@@ -148,8 +150,8 @@ impl WavSource {
         self.frames_total = self.frames_total.min(frames);
     }
 
-    /// Skip the stretches a run file lists as lost (start frame, length), so the blocks
-    /// carry the same gaps the live stream had.
+    /// The stretches a run file lists as lost (file frame where the stream jumps, frames
+    /// lost): the blocks carry the same jumps in position the live stream had.
     pub fn skip_gaps(&mut self, gaps: &[(u64, u64)]) {
         let mut g: Vec<(u64, u64)> = gaps.iter().copied().filter(|g| g.1 > 0).collect();
         g.sort_unstable();
@@ -239,21 +241,13 @@ impl Source for WavSource {
     }
 
     fn next_block(&mut self) -> Result<Option<Block>> {
-        // Step over a lost stretch that starts here.
+        // The stream jumps ahead where frames were lost before this file frame.
         while let Some(&(at, len)) = self.gaps.first() {
             if at > self.next {
                 break;
             }
             self.gaps.remove(0);
-            let end = at.saturating_add(len);
-            if end > self.next {
-                self.next = end.min(self.frames_total);
-                let off = self.data_offset
-                    + self.next * (self.kind.bytes() * self.info.channels.len()) as u64;
-                self.reader
-                    .seek(SeekFrom::Start(off))
-                    .map_err(|e| Error::new(format!("cannot read '{}': {e}", self.name)))?;
-            }
+            self.shift = self.shift.saturating_add(len);
         }
         if self.next >= self.frames_total {
             return Ok(None);
@@ -295,12 +289,14 @@ impl Source for WavSource {
             );
         }
         let block = Block {
-            start: self.next,
+            start: self.next + self.shift,
             channels,
         };
         self.next += frames as u64;
         if let Some(t0) = self.pace {
-            let due = std::time::Duration::from_secs_f64(self.next as f64 / self.info.sample_rate);
+            let due = std::time::Duration::from_secs_f64(
+                (self.next + self.shift) as f64 / self.info.sample_rate,
+            );
             if let Some(wait) = due.checked_sub(t0.elapsed()) {
                 std::thread::sleep(wait);
             }

@@ -178,8 +178,9 @@ fn exponential_window_damping_is_removed() {
     cfg.spectra.pad = 4;
     cfg.checks.residual_limit = 0.5;
     let a = analyse_samples(&chans, &sim, cfg, 4096);
-    let s = a.spectra();
-    let modes = a.modes(&s);
+    let r = a.result();
+    let s = &r.spectra;
+    let modes = r.modes().to_vec();
     let m = modes
         .iter()
         .find(|m| (m.frequency_hz - f0).abs() < 5.0)
@@ -212,9 +213,9 @@ fn cantilever_bar_matches_euler_bernoulli() {
     let (chans, plan) = simulate(plan, 16.0);
     let sim = Simulator::new(plan, None, false);
     let a = analyse_samples(&chans, &sim, AnalysisConfig::default(), 3000);
-    let s = a.spectra();
-    assert!(s.hits >= 5, "hits {}", s.hits);
-    let modes = a.modes(&s);
+    let r = a.result();
+    assert!(r.spectra.hits >= 5, "hits {}", r.spectra.hits);
+    let modes = r.modes().to_vec();
     // Geometry of the test bar, written out here rather than taken from the simulator.
     let (l, b, h, e, rho): (f64, f64, f64, f64, f64) = (0.150, 0.020, 0.003, 69e9, 2700.0);
     let root = (e * (b * h.powi(3) / 12.0) / (rho * b * h)).sqrt();
@@ -243,8 +244,7 @@ fn block_size_does_not_change_results() {
     for block in [1usize, 7, 256, 4097] {
         let parts = analyse_samples(&chans, &sim, AnalysisConfig::default(), block);
         assert_eq!(parts.hits(), whole.hits(), "block {block}");
-        let (sa, sb) = (parts.spectra(), whole.spectra());
-        assert_eq!(parts.modes(&sa), whole.modes(&sb), "block {block}");
+        assert_eq!(parts.result(), whole.result(), "block {block}");
     }
     assert!(whole.accepted() >= 3);
 }
@@ -306,9 +306,7 @@ fn batched_drain_equals_block_by_block() {
             .unwrap();
     assert!(batched.accepted() > 8, "accepted {}", batched.accepted());
     assert_eq!(batched.hits(), one_by_one.hits());
-    let (sa, sb) = (batched.spectra(), one_by_one.spectra());
-    assert_eq!(sa, sb);
-    assert_eq!(batched.modes(&sa), one_by_one.modes(&sb));
+    assert_eq!(batched.result(), one_by_one.result());
     let (la, lb) = (batched.last_hit().unwrap(), one_by_one.last_hit().unwrap());
     assert_eq!(la.record, lb.record);
     assert!(!la.record[0].is_empty());
@@ -328,8 +326,7 @@ fn simulated_modes_are_recovered() {
     let (chans, plan) = simulate(plan, 24.0);
     let sim = Simulator::new(plan, None, false);
     let a = analyse_samples(&chans, &sim, AnalysisConfig::default(), 8192);
-    let s = a.spectra();
-    let modes = a.modes(&s);
+    let modes = a.result().modes().to_vec();
     for m in &modes {
         eprintln!(
             "{:.2} Hz {:?} {} {:?} hp {:?}",

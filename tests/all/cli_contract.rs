@@ -261,3 +261,80 @@ fn run_file_has_the_schema_fields() {
     assert_eq!(run["recording"]["wav"], "s.wav");
     assert!(dir.join(run["frf_csv"].as_str().unwrap()).exists());
 }
+
+/// Re-analysing a run writes a run of the same recording described the same way: the
+/// capture's encoding and its lost stretches carry over (they used to become "counts" and
+/// nothing, so a second re-analysis would not have skipped the lost stretch).
+#[test]
+fn reanalysis_keeps_the_recordings_encoding_and_lost_stretches() {
+    let dir = temp_dir("reencode");
+    let p = |n: &str| dir.join(n).to_str().unwrap().to_string();
+    let (code, _, err) = tapmodes(&[
+        "capture",
+        "--demo",
+        "--fast",
+        "--hits",
+        "3",
+        "--out",
+        &p("live"),
+        "--variant",
+        "a",
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let json = dir.join("live").join("a.json");
+    let mut v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let encoding = v["recording"]["encoding"].clone();
+    assert!(
+        encoding.as_str().is_some_and(|e| e != "counts"),
+        "{encoding}"
+    );
+    // Say a stretch of 480 frames was lost before the recording (as a serial link can).
+    let frames = v["recording"]["frames"].as_u64().unwrap();
+    v["recording"]["frames"] = serde_json::json!(frames + 480);
+    v["recording"]["gaps"] = serde_json::json!([[1000, 480]]);
+    std::fs::write(&json, serde_json::to_string_pretty(&v).unwrap()).unwrap();
+    let again = dir.join("live").join("again.json");
+    let (code, _, err) = tapmodes(&[
+        "analyze",
+        &p("live/a.json"),
+        "--out",
+        again.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let w: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&again).unwrap()).unwrap();
+    assert_eq!(w["recording"]["encoding"], encoding);
+    assert_eq!(w["recording"]["gaps"], serde_json::json!([[1000, 480]]));
+    assert_eq!(w["recording"]["frames"], serde_json::json!(frames + 480));
+    // The stream jumps at file frame 1000: every tap after it lies 480 samples later than
+    // in the file (the frames before the jump were all read, none after it skipped).
+    let triggers = |r: &serde_json::Value| -> Vec<u64> {
+        (r["hits"].as_array().unwrap().iter())
+            .map(|h| h["trigger_sample"].as_u64().unwrap())
+            .collect()
+    };
+    let (before, after) = (triggers(&v), triggers(&w));
+    assert!(
+        !before.is_empty() && before.iter().all(|&t| t > 1000),
+        "{before:?}"
+    );
+    assert_eq!(
+        after,
+        before.iter().map(|t| t + 480).collect::<Vec<_>>(),
+        "taps after the lost stretch move by its length"
+    );
+    // And once more from the re-analysed run: the same again.
+    let third = dir.join("live").join("third.json");
+    let (code, _, err) = tapmodes(&[
+        "analyze",
+        again.to_str().unwrap(),
+        "--out",
+        third.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let t: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&third).unwrap()).unwrap();
+    assert_eq!(t["recording"], w["recording"]);
+    assert_eq!(t["modes"], w["modes"]);
+}

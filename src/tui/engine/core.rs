@@ -25,7 +25,8 @@ pub struct EngineSetup {
     pub config: AnalysisConfig,
     pub out_dir: PathBuf,
     pub label: String,
-    /// Bands for the modes' verdicts and the mount's isolation (see `drive`).
+    /// Bands for the modes' verdicts and the mount's isolation (see `drive`); goes into
+    /// the analysis' configuration, whose result carries the verdicts.
     pub drive: Option<crate::drive::Drive>,
 }
 
@@ -62,7 +63,10 @@ pub struct Engine {
 
 impl Engine {
     /// Create the engine and start this run's recording in the output folder.
-    pub fn new(setup: EngineSetup) -> Result<Engine> {
+    pub fn new(mut setup: EngineSetup) -> Result<Engine> {
+        if setup.drive.is_some() {
+            setup.config.drive = setup.drive.clone();
+        }
         let analysis = Analysis::new(&setup.info, setup.roles, setup.config.clone(), true)?;
         std::fs::create_dir_all(&setup.out_dir).map_err(|e| {
             crate::error::Error::from(e).context(format!(
@@ -316,7 +320,7 @@ impl Engine {
             ),
             mass_g: None,
         };
-        RunFiles::of(&self.analysis, variant, self.setup.drive.as_ref())
+        RunFiles::of(&self.analysis, variant)
     }
 
     /// Flush the recording and write the run files (JSON + CSV). Inline, the files are
@@ -424,7 +428,7 @@ impl Engine {
             unit: c.unit,
             freqs: spectra.freqs.clone(),
         });
-        let mut run = RunFile::from_analysis(
+        let run = RunFile::from_analysis(
             a,
             &result,
             Variant {
@@ -433,9 +437,6 @@ impl Engine {
                 mass_g: None,
             },
         );
-        if let Some(d) = &self.setup.drive {
-            crate::drive::annotate(&mut run, d, spectra);
-        }
         AnalysisSnap {
             version: self.version,
             hits: a.hits().to_vec(),
