@@ -1,71 +1,68 @@
-//! A one-line progress display on stderr for long analyses: bytes read, taps found, time
-//! left. Silent when stderr is not a terminal, with `--quiet`, and for work that ends
-//! within half a second.
+//! A progress bar on stderr for long analyses (the `indicatif` crate): bytes read, taps
+//! found, time left. Silent when stderr is not a terminal, with `--quiet`, and for work that
+//! ends within half a second.
 
 use crate::pipeline::Progress;
-use std::io::{IsTerminal, Write};
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use std::io::IsTerminal;
 use std::time::{Duration, Instant};
 
-/// Shown only after this much work, and redrawn at most this often.
+/// Shown only after this much work; redrawn at most this many times a second.
 const FIRST_AFTER: Duration = Duration::from_millis(500);
-const EVERY: Duration = Duration::from_millis(100);
+const REDRAWS_PER_S: u8 = 10;
 
 pub struct Meter {
-    enabled: bool,
-    total_frames: u64,
+    /// `None` when nothing is to be shown (not a terminal, quiet, empty input).
+    bar: Option<ProgressBar>,
     bytes_per_frame: u64,
     start: Instant,
-    last: Option<Instant>,
+    shown: bool,
 }
 
 impl Meter {
     /// A meter for a stream of `total_frames` frames of `bytes_per_frame` bytes.
     pub fn new(total_frames: u64, bytes_per_frame: u64, quiet: bool) -> Self {
+        let enabled = !quiet && std::io::stderr().is_terminal() && total_frames > 0;
+        let bar = enabled.then(|| {
+            // Hidden until the work has taken FIRST_AFTER: short runs print nothing.
+            let bar = ProgressBar::with_draw_target(
+                Some(total_frames * bytes_per_frame),
+                ProgressDrawTarget::hidden(),
+            );
+            if let Ok(style) = ProgressStyle::with_template(
+                "{bar:24} {bytes} of {total_bytes} read, {msg}, about {eta} left",
+            ) {
+                bar.set_style(style.progress_chars("=> "));
+            }
+            bar
+        });
         Meter {
-            enabled: !quiet && std::io::stderr().is_terminal() && total_frames > 0,
-            total_frames,
+            bar,
             bytes_per_frame,
             start: Instant::now(),
-            last: None,
+            shown: false,
         }
     }
 
     pub fn update(&mut self, p: Progress) {
-        if !self.enabled {
+        let Some(bar) = &self.bar else {
             return;
-        }
-        let now = Instant::now();
-        let elapsed = now - self.start;
-        if elapsed < FIRST_AFTER || self.last.is_some_and(|t| now - t < EVERY) {
-            return;
-        }
-        self.last = Some(now);
-        let done = p.frames.min(self.total_frames) as f64 / self.total_frames as f64;
-        let mb = |frames: u64| (frames * self.bytes_per_frame) as f64 / 1e6;
-        let left = if done > 0.0 {
-            elapsed.as_secs_f64() * (1.0 - done) / done
-        } else {
-            0.0
         };
-        let mut err = std::io::stderr().lock();
-        let _ = write!(
-            err,
-            "\r\x1b[K{:.0} of {:.0} MB read, {} taps ({} accepted), about {:.0} s left",
-            mb(p.frames),
-            mb(self.total_frames),
-            p.hits,
-            p.accepted,
-            left.ceil()
-        );
-        let _ = err.flush();
+        if !self.shown {
+            if self.start.elapsed() < FIRST_AFTER {
+                return;
+            }
+            bar.set_draw_target(ProgressDrawTarget::stderr_with_hz(REDRAWS_PER_S));
+            self.shown = true;
+        }
+        bar.set_message(format!("{} taps ({} accepted)", p.hits, p.accepted));
+        bar.set_position(p.frames * self.bytes_per_frame);
     }
 
-    /// Clear the line (if anything was shown).
+    /// Clear the bar (if anything was shown).
     pub fn finish(&mut self) {
-        if self.last.take().is_some() {
-            let mut err = std::io::stderr().lock();
-            let _ = write!(err, "\r\x1b[K");
-            let _ = err.flush();
+        if let Some(bar) = self.bar.take() {
+            bar.finish_and_clear();
         }
     }
 }
