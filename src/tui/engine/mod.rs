@@ -1,4 +1,4 @@
-//! The analysis side of the app, in three parts:
+//! The analysis side of the app, in four parts:
 //!
 //! - `messages`: what the screen and the engine say to each other (commands, snapshots).
 //! - `core`: the `Engine`, which owns the `Analysis` and prepares saves.
