@@ -7,6 +7,7 @@ use crate::error::Result;
 use crate::pipeline::analyse_source;
 use crate::run::compare::matching::{Candidate, MatchRules, pair_modes};
 use crate::run::{FileKind, safe_path, validate};
+use crate::shapes::frf::PointFrfs;
 use crate::shapes::points::{self, ShapeFile, ShapeMode};
 use crate::strip::bar::{self, TapPlan};
 use clap::Args;
@@ -38,7 +39,12 @@ pub struct ShapesCompareArgs {
     #[arg(value_name = "B.json")]
     pub variant: PathBuf,
     /// Largest relative frequency shift of a pair, %.
-    #[arg(long, value_name = "PCT", default_value_t = 30.0)]
+    #[arg(
+        long,
+        value_name = "PCT",
+        default_value_t = 30.0,
+        allow_negative_numbers = true
+    )]
     pub max_shift_pct: f64,
 }
 
@@ -73,27 +79,53 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
         analyse_source(&mut src, roles, cfg, false)
     };
     let mut seed_notes = Vec::new();
-    let (freqs, frfs, per_point) = points::analyse_points(&a.plan, &plan, &open, &mut seed_notes)?;
-    let seeds = points::seeds_from(&per_point);
+    let data = points::analyse_points(&a.plan, &plan, &open, &mut seed_notes)?;
+    let names: Vec<String> = plan.iter().map(|p| p.name.clone()).collect();
+    let (seeds, mut set_aside) = points::seeds_from(&data.modes, &names);
     if seeds.is_empty() {
-        crate::fail!("no point's recording showed a mode, so there are no shapes to fit");
-    }
-    let (found, mut notes) = points::shapes_over_points(&freqs, &frfs, &seeds);
-    notes.splice(0..0, seed_notes);
-    if found.is_empty() {
+        let why: Vec<String> = set_aside.iter().map(|s| s.reason.clone()).collect();
         crate::fail!(
-            "the shared-pole fit failed in every band: {}",
-            notes.join("; ")
+            "no mode showed at {} or more points, so there are no shapes to fit{}",
+            points::MIN_POINTS,
+            if why.is_empty() {
+                String::new()
+            } else {
+                format!(": {}", why.join("; "))
+            }
         );
     }
+    let (fitted, mut notes) = points::shapes_over_points(&data.freqs, &data.frfs, &seeds);
+    notes.splice(0..0, seed_notes);
+    let mut found = Vec::new();
+    for (s, err) in fitted {
+        match points::doubtful_shape(&s, &names) {
+            Some(aside) => set_aside.push(aside),
+            None => found.push((s, err)),
+        }
+    }
+    if found.is_empty() {
+        let mut why = notes.clone();
+        why.extend(set_aside.iter().map(|s| s.reason.clone()));
+        crate::fail!("no shape could be kept: {}", why.join("; "));
+    }
     for (s, _) in &found {
-        if s.realness < 0.9 {
+        if s.realness < points::DOUBTFUL_REALNESS {
             notes.push(format!(
                 "the {:.1} Hz shape is far from real (realness {:.2}): a non-proportionally damped mode or a poor fit; its signs are doubtful",
                 s.frequency_hz, s.realness
             ));
         }
     }
+    set_aside.sort_by(|x, y| x.frequency_hz.total_cmp(&y.frequency_hz));
+    let (frf, frf_notes) = PointFrfs::build(
+        &data.freqs,
+        &data.frfs,
+        &data.coherence,
+        data.band_hz,
+        &data.unit,
+        &names,
+    );
+    notes.extend(frf_notes);
     let label = a
         .label
         .as_ref()
@@ -105,7 +137,7 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
         });
     let file = ShapeFile {
         kind: points::KIND.into(),
-        schema_version: 1,
+        schema_version: points::SCHEMA_VERSION,
         tool_version: env!("CARGO_PKG_VERSION").into(),
         created_utc: crate::run::now_rfc3339(),
         label,
@@ -114,7 +146,9 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
             .into_iter()
             .map(|(shape, fit_error)| ShapeMode { shape, fit_error })
             .collect(),
+        set_aside,
         notes,
+        frf: Some(frf),
     };
     print!("{}", render(&file));
     if let Some(out) = &a.out {
@@ -158,6 +192,9 @@ pub fn render(f: &ShapeFile) -> String {
             out.push('\n');
         }
     }
+    for s in &f.set_aside {
+        out += &format!("set aside: {}\n", s.reason);
+    }
     for n in &f.notes {
         out += &format!("note: {n}\n");
     }
@@ -180,7 +217,10 @@ pub fn compare_run(a: &ShapesCompareArgs) -> Result<()> {
     let base = ShapeFile::load(&a.baseline)?;
     let var = ShapeFile::load(&a.variant)?;
     if !(a.max_shift_pct.is_finite() && a.max_shift_pct > 0.0) {
-        crate::fail!("--max-shift-pct must be a positive number");
+        crate::fail!(
+            "--max-shift-pct must be a positive number (got {})",
+            a.max_shift_pct
+        );
     }
     let same_points = base.points.len() == var.points.len()
         && base
