@@ -25,6 +25,10 @@ pub struct ShapesArgs {
     /// Label of this test [default: the plan's stem].
     #[arg(long, value_name = "LABEL")]
     pub label: Option<String>,
+    /// Draw each mode's deformed shape into this folder (`mode-1.svg`, ...): needs the
+    /// points' coordinates in the plan (`| x, y, z` in mm) and directions x, y or z.
+    #[arg(long, value_name = "DIR")]
+    pub svg: Option<PathBuf>,
     #[command(flatten)]
     pub channels: ChannelArgs,
     #[command(flatten)]
@@ -68,6 +72,11 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
             crate::fail!("--out must name a .json file (not '{}')", out.display());
         }
         safe_path::check_output(out, FileKind::Json, &[&a.plan])?;
+    }
+    if a.svg.is_some()
+        && let Some(p) = crate::shapes::picture::problem(&plan)
+    {
+        crate::fail!("--svg: {p}");
     }
     let open = |wav: &Path| {
         let choice = a.channels.role_choice();
@@ -154,6 +163,30 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
     if let Some(out) = &a.out {
         file.save(out)?;
         println!("wrote {}", out.display());
+    }
+    if let Some(dir) = &a.svg {
+        write_pictures(&file, dir)?;
+    }
+    Ok(())
+}
+
+/// One SVG per mode in `dir` (created if missing).
+fn write_pictures(file: &ShapeFile, dir: &Path) -> Result<()> {
+    std::fs::create_dir_all(dir)
+        .map_err(|e| crate::error::Error::new(format!("cannot create '{}': {e}", dir.display())))?;
+    for (i, m) in file.modes.iter().enumerate() {
+        let title = format!(
+            "{}: mode {}, {:.2} Hz, realness {:.3}",
+            file.label,
+            i + 1,
+            m.shape.frequency_hz,
+            m.shape.realness
+        );
+        let svg = crate::shapes::picture::shape_svg(&file.points, &m.shape, &title)?;
+        let path = dir.join(format!("mode-{}.svg", i + 1));
+        crate::run::atomic::write_atomic(&path, svg.as_bytes())
+            .map_err(|e| e.context(format!("cannot write '{}'", path.display())))?;
+        println!("wrote {}", path.display());
     }
     Ok(())
 }
@@ -307,6 +340,19 @@ pub const TM9_POINTS: [&str; 8] = [
     "left rear arm, root",
 ];
 
+/// Where the demo's points are, mm (x forward, y left, z up): arms at 45 degrees, motor
+/// mounts 160 mm from the centre, roots 45 mm (invented).
+pub const TM9_PLACES: [[f64; 3]; 8] = [
+    [113.1, 113.1, 0.0],
+    [31.8, 31.8, 0.0],
+    [113.1, -113.1, 0.0],
+    [31.8, -31.8, 0.0],
+    [-113.1, -113.1, 0.0],
+    [-31.8, -31.8, 0.0],
+    [-113.1, 113.1, 0.0],
+    [-31.8, 31.8, 0.0],
+];
+
 /// The demo's true shapes (invented): yaw twist (the arms bend the same way round the
 /// frame, so the tips alternate in z about the diagonals) and fore-aft flap (front arms
 /// against rear arms).
@@ -321,7 +367,7 @@ pub fn demo_run(a: &ShapesDemoArgs) -> Result<()> {
     let (f_twist, f_flap) = if a.braced { (74.0, 70.5) } else { (68.0, 71.0) };
     let reference = 0;
     let mut plan = String::from(
-        "# TM9 frame, roving hammer, sensor at point 1 (z = vertical)\n# name | direction | recording\n",
+        "# TM9 frame, roving hammer, sensor at point 1 (x forward, y left, z up; mm)\n# name | direction | recording | x, y, z\n",
     );
     let mut recordings = Vec::new();
     for p in 0..TM9_POINTS.len() {
@@ -353,7 +399,8 @@ pub fn demo_run(a: &ShapesDemoArgs) -> Result<()> {
     for (p, ((force, accel), fs)) in recordings.iter().enumerate() {
         let file = format!("p{}.wav", p + 1);
         bar::write_wav_scaled(&a.dir.join(&file), *fs, force, accel, gains)?;
-        plan += &format!("{} | z | {file}\n", TM9_POINTS[p]);
+        let [x, y, z] = TM9_PLACES[p];
+        plan += &format!("{} | z | {file} | {x}, {y}, {z}\n", TM9_POINTS[p]);
     }
     let plan_path = a.dir.join("plan.txt");
     crate::run::atomic::write_atomic(&plan_path, plan.as_bytes())?;

@@ -12,6 +12,7 @@
 //! single-curve fit (`modes::fit::fit_band`) of the point where the modes show best.
 
 pub mod frf;
+pub mod picture;
 pub mod points;
 
 use crate::modes::fit::{self, Seed};

@@ -7,6 +7,8 @@
 //! # name                          | direction | recording
 //! left front arm, motor mount     | z         | p1.wav
 //! ```
+//! An optional fourth field gives the point's place, `x, y, z` in mm (every point or none),
+//! for the pictures of the shapes (`picture`).
 //! Recordings are relative to the plan file. Every recording goes through the one pipeline
 //! (`pipeline::analyse_source`) with the same settings; all must give FRFs on the same
 //! frequency lines (same sample rate and record length).
@@ -30,6 +32,18 @@ pub struct Point {
     pub direction: String,
     /// Recording, relative to the plan (as written in it).
     pub recording: String,
+    /// Where the point is, mm (`x, y, z`), when the plan says (for the pictures).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub coordinates_mm: Option<[f64; 3]>,
+}
+
+/// `x, y, z` in mm, each a finite number.
+fn parse_coordinates(text: &str) -> Option<[f64; 3]> {
+    let v: Vec<f64> = text
+        .split(',')
+        .map(|t| t.trim().parse::<f64>().ok().filter(|x| x.is_finite()))
+        .collect::<Option<Vec<f64>>>()?;
+    (v.len() == 3).then(|| [v[0], v[1], v[2]])
 }
 
 /// Read a plan file. Refuses a file that is not text (a WAV given as the plan, say), a line
@@ -55,17 +69,49 @@ pub fn read_plan(path: &Path) -> Result<Vec<Point>> {
             continue;
         }
         let f: Vec<&str> = line.split('|').map(str::trim).collect();
-        if f.len() != 3 || f.iter().any(|s| s.is_empty()) {
+        if !(f.len() == 3 || f.len() == 4) || f.iter().any(|s| s.is_empty()) {
             crate::fail!(
-                "line {} of the plan '{}' must be 'name | direction | recording.wav'",
+                "line {} of the plan '{}' must be 'name | direction | recording.wav' (optionally '| x, y, z' in mm)",
                 n + 1,
                 path.display()
+            );
+        }
+        let coordinates_mm = match f.get(3) {
+            None => None,
+            Some(t) => match parse_coordinates(t) {
+                Some(c) => Some(c),
+                None => crate::fail!(
+                    "line {} of the plan '{}': the coordinates must be three numbers in mm, 'x, y, z' (got '{t}')",
+                    n + 1,
+                    path.display()
+                ),
+            },
+        };
+        if let Some(q) = points.first()
+            && q.coordinates_mm.is_some() != coordinates_mm.is_some()
+        {
+            crate::fail!(
+                "line {} of the plan '{}' {} coordinates and line {} {}: give them for every point or none",
+                n + 1,
+                path.display(),
+                if coordinates_mm.is_some() {
+                    "has"
+                } else {
+                    "has no"
+                },
+                lines[0],
+                if q.coordinates_mm.is_some() {
+                    "has"
+                } else {
+                    "has none"
+                }
             );
         }
         let p = Point {
             name: f[0].into(),
             direction: f[1].into(),
             recording: f[2].into(),
+            coordinates_mm,
         };
         let key = |r: &str| -> PathBuf {
             Path::new(r)

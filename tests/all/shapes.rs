@@ -207,9 +207,16 @@ fn tm9_points_shapes_and_a_swap_paired_by_shape() {
         0
     );
     let (ja, jb) = (dir.join("a.json"), dir.join("b.json"));
+    let pics = dir.join("pics");
     for (plan, out) in [(&base, &ja), (&braced, &jb)] {
-        let (code, o, e) =
-            crate::common::tapmodes(&["shapes", &s(&plan.join("plan.txt")), "--out", &s(out)]);
+        let (code, o, e) = crate::common::tapmodes(&[
+            "shapes",
+            &s(&plan.join("plan.txt")),
+            "--out",
+            &s(out),
+            "--svg",
+            &s(&pics),
+        ]);
         assert_eq!(code, 0, "{o}{e}");
     }
     let file: serde_json::Value =
@@ -301,6 +308,46 @@ fn tm9_points_shapes_and_a_swap_paired_by_shape() {
         assert!(m > 0.999, "MAC {m}");
         assert!((again.frequency_hz - kept.shape.frequency_hz).abs() < 0.05);
     }
+    // The pictures (the braced run's, written last): they parse as XML and hold every
+    // point at rest (hollow) and moved (filled), placed as the oblique view of the plan's
+    // coordinates under one scale and offset.
+    let back_b = points::ShapeFile::load(&jb).unwrap();
+    for (i, m) in back_b.modes.iter().enumerate() {
+        let text = std::fs::read_to_string(pics.join(format!("mode-{}.svg", i + 1))).unwrap();
+        let doc = roxmltree::Document::parse(&text).expect("the picture is XML");
+        let circles: Vec<(bool, f64, f64)> = doc
+            .descendants()
+            .filter(|n| n.has_tag_name("circle"))
+            .map(|n| {
+                let num = |a: &str| n.attribute(a).unwrap().parse::<f64>().unwrap();
+                (n.attribute("fill") == Some("none"), num("cx"), num("cy"))
+            })
+            .collect();
+        let rest: Vec<(f64, f64)> = circles.iter().filter(|c| c.0).map(|c| (c.1, c.2)).collect();
+        let moved: Vec<(f64, f64)> = circles
+            .iter()
+            .filter(|c| !c.0)
+            .map(|c| (c.1, c.2))
+            .collect();
+        assert_eq!((rest.len(), moved.len()), (8, 8), "{text}");
+        let want = shapes::picture::placed(&back_b.points, &m.shape).unwrap();
+        let scale = (rest[2].0 - rest[0].0) / (want[2].0.0 - want[0].0.0);
+        assert!(scale > 0.0);
+        for (got, w) in [(&rest, 0), (&moved, 1)] {
+            for p in 0..8 {
+                let (u, v) = if w == 0 { want[p].0 } else { want[p].1 };
+                let (u0, v0) = want[0].0;
+                let x = rest[0].0 + scale * (u - u0);
+                let y = rest[0].1 - scale * (v - v0);
+                assert!(
+                    (got[p].0 - x).abs() < 1.5 && (got[p].1 - y).abs() < 1.5,
+                    "point {} ({w}): {:?} vs ({x}, {y})",
+                    p + 1,
+                    got[p]
+                );
+            }
+        }
+    }
     let size = std::fs::metadata(&ja).unwrap().len();
     eprintln!("shape file with point FRFs: {size} bytes");
     assert!(size < 1_000_000, "{size} bytes");
@@ -332,6 +379,16 @@ fn bad_plans_are_one_sentence_and_an_error() {
         ),
         ("binary.txt", "RIFF\0\0\0\0WAVEfmt ", "is not a text plan"),
         (
+            "mixed.txt",
+            "a | z | p1.wav | 0, 0, 0\nb | z | p2.wav\n",
+            "give them for every point or none",
+        ),
+        (
+            "coords.txt",
+            "a | z | p1.wav | 0, 0\nb | z | p2.wav | 1, 2, 3\n",
+            "the coordinates must be three numbers in mm",
+        ),
+        (
             "missing.txt",
             "a | z | nope1.wav\nb | z | nope2.wav\n",
             "point 'a'",
@@ -345,6 +402,12 @@ fn bad_plans_are_one_sentence_and_an_error() {
         assert!(err.contains(want), "{name}: {err}");
         assert_eq!(err.trim().lines().count(), 1, "{err}");
     }
+    let plan = dir.join("nowhere.txt");
+    std::fs::write(&plan, "a | z | p1.wav\nb | radial | p2.wav\n").unwrap();
+    let (code, _, err) =
+        crate::common::tapmodes(&["shapes", plan.to_str().unwrap(), "--svg", "pics"]);
+    assert_ne!(code, 0);
+    assert!(err.contains("--svg: point 'a' has no coordinates"), "{err}");
     let (code, _, err) =
         crate::common::tapmodes(&["shapes", dir.join("absent.txt").to_str().unwrap()]);
     assert_ne!(code, 0);
