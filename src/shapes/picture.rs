@@ -58,8 +58,11 @@ pub fn problem(points: &[Point]) -> Option<String> {
         })
 }
 
+/// A point in the view, mm (u right, v up).
+pub type ViewPoint = (f64, f64);
+
 /// The points at rest and moved, in the view (mm): `(rest, moved)` per point.
-pub fn placed(points: &[Point], shape: &Shape) -> Result<Vec<((f64, f64), (f64, f64))>> {
+pub fn placed(points: &[Point], shape: &Shape) -> Result<Vec<(ViewPoint, ViewPoint)>> {
     if let Some(p) = problem(points) {
         return Err(Error::new(p));
     }
