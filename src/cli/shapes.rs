@@ -7,6 +7,7 @@ use crate::error::Result;
 use crate::pipeline::analyse_source;
 use crate::run::compare::matching::{Candidate, MatchRules, pair_modes};
 use crate::run::{FileKind, safe_path, validate};
+use crate::shapes::frf::PointFrfs;
 use crate::shapes::points::{self, ShapeFile, ShapeMode};
 use crate::strip::bar::{self, TapPlan};
 use clap::Args;
@@ -24,6 +25,10 @@ pub struct ShapesArgs {
     /// Label of this test [default: the plan's stem].
     #[arg(long, value_name = "LABEL")]
     pub label: Option<String>,
+    /// Draw each mode's deformed shape into this folder (`mode-1.svg`, ...): needs the
+    /// points' coordinates in the plan (`| x, y, z` in mm) and directions x, y or z.
+    #[arg(long, value_name = "DIR")]
+    pub svg: Option<PathBuf>,
     #[command(flatten)]
     pub channels: ChannelArgs,
     #[command(flatten)]
@@ -38,7 +43,12 @@ pub struct ShapesCompareArgs {
     #[arg(value_name = "B.json")]
     pub variant: PathBuf,
     /// Largest relative frequency shift of a pair, %.
-    #[arg(long, value_name = "PCT", default_value_t = 30.0)]
+    #[arg(
+        long,
+        value_name = "PCT",
+        default_value_t = 30.0,
+        allow_negative_numbers = true
+    )]
     pub max_shift_pct: f64,
 }
 
@@ -63,6 +73,11 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
         }
         safe_path::check_output(out, FileKind::Json, &[&a.plan])?;
     }
+    if a.svg.is_some()
+        && let Some(p) = crate::shapes::picture::problem(&plan)
+    {
+        crate::fail!("--svg: {p}");
+    }
     let open = |wav: &Path| {
         let choice = a.channels.role_choice();
         let mut src = super::analyze::open_wav(wav, &a.channels, &choice)?;
@@ -73,27 +88,53 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
         analyse_source(&mut src, roles, cfg, false)
     };
     let mut seed_notes = Vec::new();
-    let (freqs, frfs, per_point) = points::analyse_points(&a.plan, &plan, &open, &mut seed_notes)?;
-    let seeds = points::seeds_from(&per_point);
+    let data = points::analyse_points(&a.plan, &plan, &open, &mut seed_notes)?;
+    let names: Vec<String> = plan.iter().map(|p| p.name.clone()).collect();
+    let (seeds, mut set_aside) = points::seeds_from(&data.modes, &names);
     if seeds.is_empty() {
-        crate::fail!("no point's recording showed a mode, so there are no shapes to fit");
-    }
-    let (found, mut notes) = points::shapes_over_points(&freqs, &frfs, &seeds);
-    notes.splice(0..0, seed_notes);
-    if found.is_empty() {
+        let why: Vec<String> = set_aside.iter().map(|s| s.reason.clone()).collect();
         crate::fail!(
-            "the shared-pole fit failed in every band: {}",
-            notes.join("; ")
+            "no mode showed at {} or more points, so there are no shapes to fit{}",
+            points::MIN_POINTS,
+            if why.is_empty() {
+                String::new()
+            } else {
+                format!(": {}", why.join("; "))
+            }
         );
     }
+    let (fitted, mut notes) = points::shapes_over_points(&data.freqs, &data.frfs, &seeds);
+    notes.splice(0..0, seed_notes);
+    let mut found = Vec::new();
+    for (s, err) in fitted {
+        match points::doubtful_shape(&s, &names) {
+            Some(aside) => set_aside.push(aside),
+            None => found.push((s, err)),
+        }
+    }
+    if found.is_empty() {
+        let mut why = notes.clone();
+        why.extend(set_aside.iter().map(|s| s.reason.clone()));
+        crate::fail!("no shape could be kept: {}", why.join("; "));
+    }
     for (s, _) in &found {
-        if s.realness < 0.9 {
+        if s.realness < points::DOUBTFUL_REALNESS {
             notes.push(format!(
                 "the {:.1} Hz shape is far from real (realness {:.2}): a non-proportionally damped mode or a poor fit; its signs are doubtful",
                 s.frequency_hz, s.realness
             ));
         }
     }
+    set_aside.sort_by(|x, y| x.frequency_hz.total_cmp(&y.frequency_hz));
+    let (frf, frf_notes) = PointFrfs::build(
+        &data.freqs,
+        &data.frfs,
+        &data.coherence,
+        data.band_hz,
+        &data.unit,
+        &names,
+    );
+    notes.extend(frf_notes);
     let label = a
         .label
         .as_ref()
@@ -105,7 +146,7 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
         });
     let file = ShapeFile {
         kind: points::KIND.into(),
-        schema_version: 1,
+        schema_version: points::SCHEMA_VERSION,
         tool_version: env!("CARGO_PKG_VERSION").into(),
         created_utc: crate::run::now_rfc3339(),
         label,
@@ -114,12 +155,38 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
             .into_iter()
             .map(|(shape, fit_error)| ShapeMode { shape, fit_error })
             .collect(),
+        set_aside,
         notes,
+        frf: Some(frf),
     };
     print!("{}", render(&file));
     if let Some(out) = &a.out {
         file.save(out)?;
         println!("wrote {}", out.display());
+    }
+    if let Some(dir) = &a.svg {
+        write_pictures(&file, dir)?;
+    }
+    Ok(())
+}
+
+/// One SVG per mode in `dir` (created if missing).
+fn write_pictures(file: &ShapeFile, dir: &Path) -> Result<()> {
+    std::fs::create_dir_all(dir)
+        .map_err(|e| crate::error::Error::new(format!("cannot create '{}': {e}", dir.display())))?;
+    for (i, m) in file.modes.iter().enumerate() {
+        let title = format!(
+            "{}: mode {}, {:.2} Hz, realness {:.3}",
+            file.label,
+            i + 1,
+            m.shape.frequency_hz,
+            m.shape.realness
+        );
+        let svg = crate::shapes::picture::shape_svg(&file.points, &m.shape, &title)?;
+        let path = dir.join(format!("mode-{}.svg", i + 1));
+        crate::run::atomic::write_atomic(&path, svg.as_bytes())
+            .map_err(|e| e.context(format!("cannot write '{}'", path.display())))?;
+        println!("wrote {}", path.display());
     }
     Ok(())
 }
@@ -158,6 +225,9 @@ pub fn render(f: &ShapeFile) -> String {
             out.push('\n');
         }
     }
+    for s in &f.set_aside {
+        out += &format!("set aside: {}\n", s.reason);
+    }
     for n in &f.notes {
         out += &format!("note: {n}\n");
     }
@@ -180,7 +250,10 @@ pub fn compare_run(a: &ShapesCompareArgs) -> Result<()> {
     let base = ShapeFile::load(&a.baseline)?;
     let var = ShapeFile::load(&a.variant)?;
     if !(a.max_shift_pct.is_finite() && a.max_shift_pct > 0.0) {
-        crate::fail!("--max-shift-pct must be a positive number");
+        crate::fail!(
+            "--max-shift-pct must be a positive number (got {})",
+            a.max_shift_pct
+        );
     }
     let same_points = base.points.len() == var.points.len()
         && base
@@ -267,6 +340,19 @@ pub const TM9_POINTS: [&str; 8] = [
     "left rear arm, root",
 ];
 
+/// Where the demo's points are, mm (x forward, y left, z up): arms at 45 degrees, motor
+/// mounts 160 mm from the centre, roots 45 mm (invented).
+pub const TM9_PLACES: [[f64; 3]; 8] = [
+    [113.1, 113.1, 0.0],
+    [31.8, 31.8, 0.0],
+    [113.1, -113.1, 0.0],
+    [31.8, -31.8, 0.0],
+    [-113.1, -113.1, 0.0],
+    [-31.8, -31.8, 0.0],
+    [-113.1, 113.1, 0.0],
+    [-31.8, 31.8, 0.0],
+];
+
 /// The demo's true shapes (invented): yaw twist (the arms bend the same way round the
 /// frame, so the tips alternate in z about the diagonals) and fore-aft flap (front arms
 /// against rear arms).
@@ -281,7 +367,7 @@ pub fn demo_run(a: &ShapesDemoArgs) -> Result<()> {
     let (f_twist, f_flap) = if a.braced { (74.0, 70.5) } else { (68.0, 71.0) };
     let reference = 0;
     let mut plan = String::from(
-        "# TM9 frame, roving hammer, sensor at point 1 (z = vertical)\n# name | direction | recording\n",
+        "# TM9 frame, roving hammer, sensor at point 1 (x forward, y left, z up; mm)\n# name | direction | recording | x, y, z\n",
     );
     let mut recordings = Vec::new();
     for p in 0..TM9_POINTS.len() {
@@ -313,7 +399,8 @@ pub fn demo_run(a: &ShapesDemoArgs) -> Result<()> {
     for (p, ((force, accel), fs)) in recordings.iter().enumerate() {
         let file = format!("p{}.wav", p + 1);
         bar::write_wav_scaled(&a.dir.join(&file), *fs, force, accel, gains)?;
-        plan += &format!("{} | z | {file}\n", TM9_POINTS[p]);
+        let [x, y, z] = TM9_PLACES[p];
+        plan += &format!("{} | z | {file} | {x}, {y}, {z}\n", TM9_POINTS[p]);
     }
     let plan_path = a.dir.join("plan.txt");
     crate::run::atomic::write_atomic(&plan_path, plan.as_bytes())?;

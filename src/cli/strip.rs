@@ -26,42 +26,68 @@ pub struct StripArgs {
     #[arg(long)]
     pub guide: bool,
     /// Strip length, mm.
-    #[arg(long, value_name = "MM", required_unless_present = "guide")]
+    #[arg(
+        long,
+        value_name = "MM",
+        required_unless_present = "guide",
+        allow_negative_numbers = true
+    )]
     pub length_mm: Option<f64>,
     /// Strip width, mm.
-    #[arg(long, value_name = "MM", required_unless_present = "guide")]
+    #[arg(
+        long,
+        value_name = "MM",
+        required_unless_present = "guide",
+        allow_negative_numbers = true
+    )]
     pub width_mm: Option<f64>,
     /// Strip thickness (the direction it bends in), mm.
-    #[arg(long, value_name = "MM", required_unless_present = "guide")]
+    #[arg(
+        long,
+        value_name = "MM",
+        required_unless_present = "guide",
+        allow_negative_numbers = true
+    )]
     pub thickness_mm: Option<f64>,
     /// Strip mass, g.
-    #[arg(long, value_name = "G", required_unless_present = "guide")]
+    #[arg(
+        long,
+        value_name = "G",
+        required_unless_present = "guide",
+        allow_negative_numbers = true
+    )]
     pub mass_g: Option<f64>,
     /// Standard uncertainty of the length, mm (a steel rule).
-    #[arg(long, value_name = "MM", default_value_t = Tolerances::DEFAULT_MM_G[0])]
+    #[arg(long, value_name = "MM", default_value_t = Tolerances::DEFAULT_MM_G[0], allow_negative_numbers = true)]
     pub length_tol_mm: f64,
     /// Standard uncertainty of the width, mm (calipers).
-    #[arg(long, value_name = "MM", default_value_t = Tolerances::DEFAULT_MM_G[1])]
+    #[arg(long, value_name = "MM", default_value_t = Tolerances::DEFAULT_MM_G[1], allow_negative_numbers = true)]
     pub width_tol_mm: f64,
     /// Standard uncertainty of the thickness, mm (a micrometer).
-    #[arg(long, value_name = "MM", default_value_t = Tolerances::DEFAULT_MM_G[2])]
+    #[arg(long, value_name = "MM", default_value_t = Tolerances::DEFAULT_MM_G[2], allow_negative_numbers = true)]
     pub thickness_tol_mm: f64,
     /// Standard uncertainty of the mass, g.
-    #[arg(long, value_name = "G", default_value_t = Tolerances::DEFAULT_MM_G[3])]
+    #[arg(long, value_name = "G", default_value_t = Tolerances::DEFAULT_MM_G[3], allow_negative_numbers = true)]
     pub mass_tol_g: f64,
-    /// Poisson's ratio put into the flexural correction T1 when the strip is not isotropic
-    /// (its effect on a thin strip is far below 0.1 %).
-    #[arg(long, value_name = "NU", default_value_t = 0.3)]
-    pub poisson: f64,
+    /// Poisson's ratio put into the flexural correction T1 [default: 0.3]; with --isotropic
+    /// the starting value of the iteration. Its effect on a thin strip is far below 0.1 %
+    /// (printed for every run).
+    #[arg(long, value_name = "NU", allow_negative_numbers = true)]
+    pub poisson: Option<f64>,
+    /// The strip is an isotropic material (a metal, an unfilled plastic): only then is
+    /// E/(2G) - 1 reported as Poisson's ratio (ASTM E1876) and used in T1. Laminates and
+    /// fibre layups are not isotropic: E/G is reported instead.
+    #[arg(long)]
+    pub isotropic: bool,
     /// A second recording with the same sensor and the hammer on the other corner of the
     /// same end: flexural modes keep their residue sign, torsional modes flip it.
     #[arg(long, value_name = "IN2.wav")]
     pub other_corner: Option<PathBuf>,
     /// Take the mode nearest this frequency for the first flexural mode.
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_negative_numbers = true)]
     pub flexural_hz: Option<f64>,
     /// Take the mode nearest this frequency for the first torsional mode.
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_negative_numbers = true)]
     pub torsional_hz: Option<f64>,
     /// Write E, G, their uncertainties and the modes to this JSON file.
     #[arg(long, short, value_name = "F.json")]
@@ -87,20 +113,50 @@ pub struct StripDemoArgs {
     /// Where to write the recording (2 channels: force N, acceleration m/s^2, 32-bit float).
     #[arg(value_name = "OUT.wav")]
     pub out: PathBuf,
-    #[arg(long, value_name = "MM", default_value_t = 180.0)]
+    #[arg(
+        long,
+        value_name = "MM",
+        default_value_t = 180.0,
+        allow_negative_numbers = true
+    )]
     pub length_mm: f64,
-    #[arg(long, value_name = "MM", default_value_t = 20.0)]
+    #[arg(
+        long,
+        value_name = "MM",
+        default_value_t = 20.0,
+        allow_negative_numbers = true
+    )]
     pub width_mm: f64,
-    #[arg(long, value_name = "MM", default_value_t = 2.0)]
+    #[arg(
+        long,
+        value_name = "MM",
+        default_value_t = 2.0,
+        allow_negative_numbers = true
+    )]
     pub thickness_mm: f64,
     /// Density, kg/m^3.
-    #[arg(long, value_name = "KG/M3", default_value_t = 1550.0)]
+    #[arg(
+        long,
+        value_name = "KG/M3",
+        default_value_t = 1550.0,
+        allow_negative_numbers = true
+    )]
     pub density: f64,
     /// Young's modulus along the length, GPa.
-    #[arg(long, value_name = "GPA", default_value_t = 45.0)]
+    #[arg(
+        long,
+        value_name = "GPA",
+        default_value_t = 45.0,
+        allow_negative_numbers = true
+    )]
     pub e_gpa: f64,
     /// Shear modulus, GPa.
-    #[arg(long, value_name = "GPA", default_value_t = 3.5)]
+    #[arg(
+        long,
+        value_name = "GPA",
+        default_value_t = 3.5,
+        allow_negative_numbers = true
+    )]
     pub g_gpa: f64,
     /// Tap the other corner of the far end (the second recording of the corner sign test).
     #[arg(long)]
@@ -116,7 +172,10 @@ pub struct StripDemoArgs {
 fn positive(name: &str, v: Option<f64>) -> Result<f64> {
     match v {
         Some(v) if v.is_finite() && v > 0.0 => Ok(v),
-        Some(v) => crate::fail!("--{name} must be a positive number (got {v})"),
+        Some(v) => crate::fail!(
+            "--{name} must be a positive number (got {})",
+            crate::strip::formulas::show(v)
+        ),
         None => crate::fail!("--{name} is required"),
     }
 }
@@ -175,8 +234,10 @@ pub fn run(a: &StripArgs) -> Result<()> {
     if let Some(p) = tol.problem() {
         crate::fail!("{p}");
     }
-    if !(a.poisson.is_finite() && (-1.0..0.5).contains(&a.poisson)) {
-        crate::fail!("--poisson must lie between -1 and 0.5 (got {})", a.poisson);
+    if let Some(nu) = a.poisson
+        && !(nu.is_finite() && (-1.0..0.5).contains(&nu))
+    {
+        crate::fail!("--poisson must lie between -1 and 0.5 (got {nu})");
     }
     for (name, v) in [
         ("flexural-hz", a.flexural_hz),
@@ -219,7 +280,8 @@ pub fn run(a: &StripArgs) -> Result<()> {
     let id = identify::identify(&modes, &strip, hints, corners.as_deref())?;
     let (ff, note_f) = Frequency::of(&modes, id.flexural);
     let (ft, note_t) = Frequency::of(&modes, id.torsional);
-    let mut result = strip::evaluate(&strip, &tol, ff, ft, a.poisson);
+    let poisson = strip::PoissonInput::new(a.poisson, a.isotropic);
+    let mut result = strip::evaluate(&strip, &tol, ff, ft, poisson)?;
     result.notes.extend(note_f);
     result.notes.extend(note_t);
     let label = a
@@ -244,7 +306,7 @@ pub fn run(a: &StripArgs) -> Result<()> {
         notes.extend(analysis_notes);
         let file = StripFile {
             kind: compare::KIND.into(),
-            schema_version: 1,
+            schema_version: compare::SCHEMA_VERSION,
             tool_version: env!("CARGO_PKG_VERSION").into(),
             created_utc: crate::run::now_rfc3339(),
             label,
@@ -260,6 +322,7 @@ pub fn run(a: &StripArgs) -> Result<()> {
             shear_modulus_pa: result.shear.value_pa,
             shear_modulus_uncertainty_pa: result.shear.expanded_uncertainty_pa,
             poisson_ratio: result.poisson_ratio,
+            poisson_ratio_reason: result.poisson_ratio_reason.clone(),
             result,
             mode_roles: id.roles.clone(),
             notes,
@@ -340,8 +403,18 @@ pub fn render(
     );
     out += &format!("  uncertainty from: {}\n", budget_line(&r.shear));
     match r.poisson_ratio {
-        Some(mu) => out += &format!("Poisson's ratio = {mu:.3} (isotropic material only)\n"),
-        None => out += &format!("E/G = {:.2}\n", r.youngs.value_pa / r.shear.value_pa),
+        Some(mu) => {
+            out += &format!(
+                "Poisson's ratio nu = {mu:.3} (E/(2G) - 1, the strip declared isotropic)   E/G = {:.2}\n",
+                r.e_over_g
+            )
+        }
+        None => {
+            out += &format!(
+                "E/G = {:.2} (no Poisson's ratio: see the note)\n",
+                r.e_over_g
+            )
+        }
     }
     for n in &r.notes {
         out += &format!("note: {n}\n");

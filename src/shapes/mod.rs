@@ -11,6 +11,8 @@
 //! Levenberg-Marquardt on the summed squared residual of all points, started from the
 //! single-curve fit (`modes::fit::fit_band`) of the point where the modes show best.
 
+pub mod frf;
+pub mod picture;
 pub mod points;
 
 use crate::modes::fit::{self, Seed};

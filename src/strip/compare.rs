@@ -11,6 +11,23 @@ use std::path::Path;
 /// Tag of a strip file, so it is never mistaken for a run file.
 pub const KIND: &str = "tapmodes-strip";
 
+/// Version of the strip file: 2 added `poisson_ratio_reason` and Poisson's ratio only for a
+/// strip declared isotropic (version 1 files still load).
+pub const SCHEMA_VERSION: u32 = 2;
+
+/// One sentence when `path` is missing or cannot be opened, before its kind is checked (so a
+/// typo does not read as "not a strip file").
+pub(crate) fn check_readable(path: &Path) -> Result<()> {
+    // Metadata, not open: opening a named pipe would wait for a writer.
+    match std::fs::metadata(path) {
+        Ok(_) => Ok(()),
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+            crate::fail!("'{}': no such file", path.display())
+        }
+        Err(e) => crate::fail!("cannot read '{}': {e}", path.display()),
+    }
+}
+
 /// One strip test as written by `tapmodes strip --out`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct StripFile {
@@ -34,8 +51,11 @@ pub struct StripFile {
     /// Dynamic shear modulus, Pa, and its expanded uncertainty (k = 2, about 95 %).
     pub shear_modulus_pa: f64,
     pub shear_modulus_uncertainty_pa: f64,
-    /// Only for an isotropic strip (E/(2G) - 1 within 0..0.5).
+    /// Only for a strip declared isotropic (`--isotropic`) whose E/(2G) - 1 lies within
+    /// 0..0.5; else null and `poisson_ratio_reason` says why.
     pub poisson_ratio: Option<f64>,
+    #[serde(default)]
+    pub poisson_ratio_reason: Option<String>,
     /// Full detail: frequencies used, correction factors, tolerances, uncertainty budgets.
     pub result: StripResult,
     /// What each mode was taken for.
@@ -54,6 +74,7 @@ impl StripFile {
     }
 
     pub fn load(path: &Path) -> Result<Self> {
+        check_readable(path)?;
         safe_path::check_input(path)?;
         if safe_path::kind_of(path) != Some(safe_path::FileKind::Json) {
             crate::fail!(
@@ -141,15 +162,19 @@ pub fn render(strips: &[StripFile]) -> String {
             s.thickness_mm,
             s.mass_g,
             s.density_kg_m3,
-            s.poisson_ratio
-                .map_or(String::new(), |m| format!(", nu {m:.3}"))
+            match (s.poisson_ratio, s.result.isotropic_declared) {
+                (Some(m), _) => format!(", nu {m:.3}"),
+                (None, true) => ", nu out".to_string(),
+                (None, false) => ", nu n/a".to_string(),
+            }
         );
     }
     out += "Legend: E Young's modulus (flexural), G shear modulus (torsional), both\n";
     out += "  dynamic; +-U expanded uncertainty (k = 2, about 95 %) from the dimensions'\n";
     out += "  tolerances and the frequency spread; E/E0, G/G0 ratio to the baseline strip:\n";
     out += "  * differs by more than the combined uncertainty, = within it; f_fl, f_to first\n";
-    out += "  flexural and first torsional frequency; nu E/(2G) - 1, Poisson's ratio only if\n";
-    out += "  the strip is isotropic.\n";
+    out += "  flexural and first torsional frequency; nu Poisson's ratio E/(2G) - 1, given\n";
+    out += "  only for a strip declared isotropic (strip --isotropic): n/a not declared,\n";
+    out += "  out declared but outside 0..0.5 (the strip does not behave isotropically).\n";
     out
 }

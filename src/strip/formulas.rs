@@ -19,9 +19,19 @@
 //!
 //! The 0.9465 of Eq. 1 is `48 pi^2 / lambda_1^4` with the free-free Euler-Bernoulli
 //! eigenvalue `lambda_1 = 4.7300` (Blevins 1979, *Formulas for Natural Frequency and Mode
-//! Shape*, Table 8-1; from memory); `tests/strip.rs` checks that link.
+//! Shape*, Table 8-1; from memory); `tests/all/strip.rs` checks that link.
 
 use serde::{Deserialize, Serialize};
+
+/// A number for a message: as typed when moderate, in exponent form when huge or tiny (so
+/// `1e300` does not fill the screen).
+pub fn show(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() || (1e-4..1e7).contains(&v.abs()) {
+        format!("{v}")
+    } else {
+        format!("{v:e}")
+    }
+}
 
 /// A rectangular strip as measured.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
@@ -54,7 +64,8 @@ impl Strip {
         for (name, v) in named {
             if !v.is_finite() || v <= 0.0 {
                 return Some(format!(
-                    "the strip's {name} must be a positive number (got {v})"
+                    "the strip's {name} must be a positive number (got {})",
+                    show(v)
                 ));
             }
         }
@@ -72,6 +83,19 @@ impl Strip {
                  formulas need a strip much longer than it is wide",
                 self.width_m * 1e3,
                 self.length_m * 1e3
+            ));
+        }
+        // Numbers each finite on their own can still overflow in the formulas (1e300 mm).
+        let d = self.density();
+        let e = youngs_modulus(self, 1.0, 0.3);
+        let g = shear_modulus(self, 1.0);
+        if !(d.is_finite() && d > 0.0 && e.is_finite() && e > 0.0 && g.is_finite() && g > 0.0) {
+            return Some(format!(
+                "the strip's dimensions and mass ({} x {} x {} mm, {} g) give no finite density or modulus: they are far outside any real strip",
+                show(self.length_m * 1e3),
+                show(self.width_m * 1e3),
+                show(self.thickness_m * 1e3),
+                show(self.mass_kg * 1e3)
             ));
         }
         None

@@ -37,15 +37,17 @@ impl Tolerances {
     }
 
     pub fn problem(&self) -> Option<String> {
-        for (name, v) in [
-            ("length", self.length_m),
-            ("width", self.width_m),
-            ("thickness", self.thickness_m),
-            ("mass", self.mass_kg),
+        // Reported in the command line's units (mm and g), not the SI values kept here.
+        for (name, v, unit) in [
+            ("length", self.length_m * 1e3, "mm"),
+            ("width", self.width_m * 1e3, "mm"),
+            ("thickness", self.thickness_m * 1e3, "mm"),
+            ("mass", self.mass_kg * 1e3, "g"),
         ] {
             if !v.is_finite() || v < 0.0 {
                 return Some(format!(
-                    "the {name} tolerance must be zero or a positive number (got {v})"
+                    "the {name} tolerance must be zero or a positive number (got {} {unit})",
+                    formulas::show(v)
                 ));
             }
         }
@@ -134,6 +136,43 @@ impl Frequency {
     }
 }
 
+/// Poisson's ratio put into T1 when the user gives none: a typical value for metals and
+/// fibre laminates alike (common practice, no source). On a thin strip T1 hardly depends on
+/// it (the effect is printed for every run).
+pub const DEFAULT_POISSON: f64 = 0.3;
+
+/// What the user says about Poisson's ratio.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PoissonInput {
+    /// The ratio for T1 (the starting value of the iteration when `isotropic`).
+    pub value: f64,
+    /// Whether the user gave `value` (else it is `DEFAULT_POISSON`).
+    pub given: bool,
+    /// The user declared the material isotropic: only then is `E / (2 G) - 1` Poisson's
+    /// ratio (ASTM E1876-15 Eq. 13 holds for isotropic materials only; from memory).
+    pub isotropic: bool,
+}
+
+impl PoissonInput {
+    pub fn new(value: Option<f64>, isotropic: bool) -> Self {
+        PoissonInput {
+            value: value.unwrap_or(DEFAULT_POISSON),
+            given: value.is_some(),
+            isotropic,
+        }
+    }
+}
+
+/// Densities a strip can plausibly have, kg/m^3: from light foams to the densest metals
+/// (tungsten about 19300, osmium about 22600, from memory); outside, a unit was most likely
+/// mistaken (common practice, no source).
+pub const DENSITY_RANGE: (f64, f64) = (100.0, 25000.0);
+/// Young's moduli a solid strip can plausibly have, Pa: stiff foams (some 0.01 GPa) to
+/// diamond (about 1000-1200 GPa, from memory); common practice, no source.
+pub const YOUNGS_RANGE: (f64, f64) = (0.01e9, 1200e9);
+/// Shear moduli likewise, Pa (diamond about 500 GPa, from memory).
+pub const SHEAR_RANGE: (f64, f64) = (0.003e9, 600e9);
+
 /// What the strip test found.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct StripResult {
@@ -148,35 +187,87 @@ pub struct StripResult {
     pub r: f64,
     /// Poisson's ratio used inside T1.
     pub poisson_in_t1: f64,
-    /// `E / (2 G) - 1` when it lies in 0..0.5 (isotropic material); else `None`.
+    /// Where `poisson_in_t1` comes from: `default`, `--poisson` or `E/(2G) - 1` (isotropic).
+    #[serde(default)]
+    pub poisson_in_t1_from: String,
+    /// Relative change of E when the ratio in T1 goes from 0 to 0.5 (how much the choice
+    /// matters for this strip).
+    #[serde(default)]
+    pub poisson_effect_on_e: f64,
+    /// The user declared the material isotropic (`--isotropic`).
+    #[serde(default)]
+    pub isotropic_declared: bool,
+    /// `E / (2 G) - 1`, only for a strip declared isotropic and when it lies in 0..0.5;
+    /// else `None` and `poisson_ratio_reason` says why.
     pub poisson_ratio: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub poisson_ratio_reason: Option<String>,
     /// `E / (2 G) - 1` whatever its value (an anisotropy indicator for laminates).
     pub e_over_2g_minus_1: f64,
+    /// `E / G`.
+    #[serde(default)]
+    pub e_over_g: f64,
     pub notes: Vec<String>,
 }
 
-/// E and G with uncertainties. `mu_assumed` is the Poisson's ratio put into T1 when the
-/// implied one is not plausible (a laminate).
+/// E and G with uncertainties. Poisson's ratio is reported only when the user declares the
+/// material isotropic; otherwise T1 takes the given (or default) ratio. Refuses results that
+/// are not finite; warns (in `notes`) when density, E or G lie outside what a real strip has.
 pub fn evaluate(
     strip: &Strip,
     tol: &Tolerances,
     flexural: Frequency,
     torsional: Frequency,
-    mu_assumed: f64,
-) -> StripResult {
+    poisson: PoissonInput,
+) -> crate::error::Result<StripResult> {
     let mut notes = Vec::new();
     let g0 = formulas::shear_modulus(strip, torsional.hz);
-    let (e0, mu_used, derived) =
-        formulas::youngs_iterated(strip, flexural.hz, Some(g0), mu_assumed);
+    let (e0, mu_used, derived) = if poisson.isotropic {
+        formulas::youngs_iterated(strip, flexural.hz, Some(g0), poisson.value)
+    } else {
+        (
+            formulas::youngs_modulus(strip, flexural.hz, poisson.value),
+            poisson.value,
+            None,
+        )
+    };
     let ratio = formulas::poisson_from(e0, g0);
-    match derived {
-        Some(mu) => notes.push(format!(
-            "E/(2G) - 1 = {mu:.3} lies in 0..0.5: reported as Poisson's ratio (valid only for an isotropic material) and used in T1"
-        )),
-        None => notes.push(format!(
-            "E/(2G) - 1 = {ratio:.2} is outside 0..0.5: the strip is not isotropic (a laminate or fibre layup), so no Poisson's ratio is reported; T1 used {mu_assumed:.2} (--poisson)"
-        )),
-    }
+    let given = if poisson.given {
+        "--poisson"
+    } else {
+        "default"
+    };
+    let from = if derived.is_some() {
+        "E/(2G) - 1"
+    } else {
+        given
+    };
+    let effect = formulas::t1(strip, 0.5) / formulas::t1(strip, 0.0) - 1.0;
+    let reason = match (poisson.isotropic, derived) {
+        (true, Some(mu)) => {
+            notes.push(format!(
+                "declared isotropic: Poisson's ratio E/(2G) - 1 = {mu:.3} (ASTM E1876 Eq. 13, from memory), used in T1"
+            ));
+            None
+        }
+        (true, None) => {
+            let r = format!(
+                "declared isotropic, but E/(2G) - 1 = {ratio:.3} lies outside 0..0.5, which an isotropic solid does not give: the strip does not behave isotropically or a mode was mistaken"
+            );
+            notes.push(format!("warning: {r}; T1 used {mu_used:.2} ({given})"));
+            Some(r)
+        }
+        (false, _) => {
+            notes.push(format!(
+                "no Poisson's ratio: E/(2G) - 1 is Poisson's ratio only for an isotropic material (ASTM E1876), so it is given only with --isotropic; T1 used {mu_used:.2} ({given}), and any ratio from 0 to 0.5 would move E by {:.3} % on this strip (thin strips hardly depend on it)",
+                100.0 * effect
+            ));
+            Some(
+                "not declared isotropic (--isotropic): E/(2G) - 1 is Poisson's ratio only for an isotropic material (ASTM E1876)"
+                    .to_string(),
+            )
+        }
+    };
     let x = [
         strip.length_m,
         strip.width_m,
@@ -214,7 +305,38 @@ pub fn evaluate(
         &names,
     );
     let shear = propagate(&|x| formulas::shear_modulus(&s(x), x[5]), &x, &u, &names);
-    StripResult {
+    let all = [
+        youngs.value_pa,
+        youngs.standard_uncertainty_pa,
+        shear.value_pa,
+        shear.standard_uncertainty_pa,
+    ];
+    if !all.iter().all(|v| v.is_finite()) || youngs.value_pa <= 0.0 || shear.value_pa <= 0.0 {
+        crate::fail!(
+            "E or G of this strip (or its uncertainty) is not a finite positive number: check the dimensions, mass, tolerances and frequencies"
+        );
+    }
+    let density = strip.density();
+    if !(DENSITY_RANGE.0..=DENSITY_RANGE.1).contains(&density) {
+        notes.push(format!(
+            "warning: the density {density:.4e} kg/m^3 implied by the dimensions and mass is outside the {:.0}..{:.0} kg/m^3 of real strips: check the units of --length-mm, --width-mm, --thickness-mm and --mass-g",
+            DENSITY_RANGE.0, DENSITY_RANGE.1
+        ));
+    }
+    for (what, v, range) in [
+        ("Young's modulus E", youngs.value_pa, YOUNGS_RANGE),
+        ("shear modulus G", shear.value_pa, SHEAR_RANGE),
+    ] {
+        if !(range.0..=range.1).contains(&v) {
+            notes.push(format!(
+                "warning: the {what} of {:.4e} GPa is outside the {}..{} GPa of real solids: check the dimensions, the mass and which modes were taken",
+                v / 1e9,
+                range.0 / 1e9,
+                range.1 / 1e9
+            ));
+        }
+    }
+    Ok(StripResult {
         strip: *strip,
         tolerances: *tol,
         flexural,
@@ -222,12 +344,17 @@ pub fn evaluate(
         t1: formulas::t1(strip, mu_used),
         r: formulas::r_factor(strip),
         poisson_in_t1: mu_used,
+        poisson_in_t1_from: from.to_string(),
+        poisson_effect_on_e: effect,
+        isotropic_declared: poisson.isotropic,
         poisson_ratio: derived,
+        poisson_ratio_reason: reason,
         e_over_2g_minus_1: ratio,
+        e_over_g: youngs.value_pa / shear.value_pa,
         youngs,
         shear,
         notes,
-    }
+    })
 }
 
 /// Where to support, tap and place the sensor (printed by `tapmodes strip --guide`). The

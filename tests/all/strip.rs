@@ -139,14 +139,30 @@ fn simulated_laminate_bar_gives_back_e_and_g() {
         v["poisson_ratio"].is_null(),
         "a laminate has no Poisson's ratio"
     );
+    assert!(
+        v["poisson_ratio_reason"]
+            .as_str()
+            .unwrap()
+            .contains("not declared isotropic"),
+        "{}",
+        v["poisson_ratio_reason"]
+    );
+    assert_eq!(v["result"]["poisson_in_t1_from"], "default");
+    // T1 over Poisson's ratio 0..0.5 on a 2 mm x 180 mm strip: below 0.1 % (E1876 Eq. 2, from
+    // memory), and the note says by how much.
+    let effect = v["result"]["poisson_effect_on_e"].as_f64().unwrap();
+    assert!(effect > 0.0 && effect < 1e-3, "{effect}");
+    assert!(v["notes"].to_string().contains("would move E by 0.020 %"));
     assert_eq!(v["mode_roles"][0], "first flexural (E)");
     assert!(v["modes"].as_array().unwrap().len() >= 4);
 }
 
 /// An isotropic bar (aluminium-like E = 70 GPa, G = 26.3 GPa: Poisson's ratio 0.331 by
-/// E = 2G(1 + mu), common practice, no source): E within 1 %, Poisson's ratio within 0.02.
+/// E = 2G(1 + mu), common practice, no source): declared isotropic, E within 1 % and
+/// Poisson's ratio within 0.02; not declared, no ratio (ASTM E1876's E/(2G) - 1 holds for
+/// isotropic materials only) and T1 takes the default 0.3.
 #[test]
-fn simulated_isotropic_bar_gives_poissons_ratio() {
+fn simulated_isotropic_bar_gives_poissons_ratio_only_when_declared() {
     let dir = temp_dir("strip-iso");
     let b = Bar {
         length_m: 0.200,
@@ -156,7 +172,7 @@ fn simulated_isotropic_bar_gives_poissons_ratio() {
         youngs_pa: 70e9,
         shear_pa: 26.3e9,
     };
-    let v = run_strip(&dir, "iso", &b, &[]);
+    let v = run_strip(&dir, "iso", &b, &["--isotropic"]);
     let e = v["youngs_modulus_pa"].as_f64().unwrap();
     eprintln!("isotropic: E {e:.4e} (true 7.0e10), {}", v["poisson_ratio"]);
     assert!(close(e, 70e9, 0.01), "E = {e}");
@@ -164,6 +180,44 @@ fn simulated_isotropic_bar_gives_poissons_ratio() {
         .as_f64()
         .expect("isotropic: a Poisson's ratio");
     assert!((mu - (70.0 / (2.0 * 26.3) - 1.0)).abs() < 0.02, "mu = {mu}");
+    assert!(v["poisson_ratio_reason"].is_null());
+    assert_eq!(v["result"]["poisson_in_t1_from"], "E/(2G) - 1");
+    assert!((v["result"]["poisson_in_t1"].as_f64().unwrap() - mu).abs() < 1e-9);
+    let v = run_strip(&dir, "iso-undeclared", &b, &[]);
+    assert!(v["poisson_ratio"].is_null(), "{}", v["poisson_ratio"]);
+    assert_eq!(v["result"]["poisson_in_t1"], 0.3);
+    let v = run_strip(&dir, "iso-given", &b, &["--poisson", "0.25"]);
+    assert_eq!(v["result"]["poisson_in_t1"], 0.25);
+    assert_eq!(v["result"]["poisson_in_t1_from"], "--poisson");
+}
+
+/// The +-45 layup of the audit (E 18 GPa, G 9 GPa: E/(2G) - 1 = 0.0 lies in 0..0.5 by
+/// accident): no Poisson's ratio unless declared isotropic; declared, the implausible ratio
+/// of a strip that is not isotropic (E/(2G) - 1 = 5.4, the 0/90 strip) is refused with a
+/// warning.
+#[test]
+fn laminate_strips_get_no_poissons_ratio() {
+    let dir = temp_dir("strip-pm45");
+    let mk = |e: f64, g: f64| Bar {
+        length_m: 0.180,
+        width_m: 0.020,
+        thickness_m: 0.002,
+        density: 1550.0,
+        youngs_pa: e,
+        shear_pa: g,
+    };
+    let v = run_strip(&dir, "pm45", &mk(18e9, 9e9), &[]);
+    assert!(v["poisson_ratio"].is_null());
+    assert!((v["result"]["e_over_g"].as_f64().unwrap() - 2.0).abs() < 0.05);
+    let v = run_strip(&dir, "lay090", &mk(45e9, 3.5e9), &["--isotropic"]);
+    assert!(v["poisson_ratio"].is_null());
+    let why = v["poisson_ratio_reason"].as_str().unwrap();
+    assert!(why.contains("outside 0..0.5"), "{why}");
+    assert!(
+        v["notes"]
+            .to_string()
+            .contains("warning: declared isotropic")
+    );
 }
 
 /// Two corners: flexural modes keep the residue sign, torsional ones flip it (free-free
@@ -224,7 +278,26 @@ fn bad_strip_input_is_one_sentence_and_an_error() {
     bar::write_wav(&wav, plan.sample_rate, &f, &a).unwrap();
     let w = wav.to_str().unwrap();
     let base = ["strip", w, "--width-mm", "20", "--mass-g", "11.16"];
-    let cases: [(&[&str], &str); 6] = [
+    let cases: [(&[&str], &str); 9] = [
+        (
+            &["--length-mm", "-180", "--thickness-mm", "2"],
+            "--length-mm must be a positive number (got -180)",
+        ),
+        (
+            &["--length-mm", "1e300", "--thickness-mm", "2"],
+            "give no finite density or modulus",
+        ),
+        (
+            &[
+                "--length-mm",
+                "180",
+                "--thickness-mm",
+                "2",
+                "--mass-tol-g",
+                "-0.5",
+            ],
+            "the mass tolerance must be zero or a positive number (got -0.5 g)",
+        ),
         (
             &["--length-mm", "0", "--thickness-mm", "2"],
             "--length-mm must be a positive number",
@@ -260,7 +333,7 @@ fn bad_strip_input_is_one_sentence_and_an_error() {
                 "2",
                 "--length-tol-mm=-1",
             ],
-            "tolerance must be zero or a positive number",
+            "the length tolerance must be zero or a positive number (got -1 mm)",
         ),
     ];
     for (extra, want) in cases {
@@ -321,4 +394,43 @@ fn strips_compare_side_by_side() {
         err.contains("not JSON") || err.contains("not a strip file"),
         "{err}"
     );
+    let missing = dir.join("nope.json");
+    let (code, _, err) = tapmodes(&[
+        "strip-compare",
+        a.to_str().unwrap(),
+        missing.to_str().unwrap(),
+    ]);
+    assert_ne!(code, 0);
+    assert!(err.contains("nope.json': no such file"), "{err}");
+    assert_eq!(err.trim().lines().count(), 1, "{err}");
+    assert!(out.contains("1550 kg/m^3, nu n/a"), "{out}");
+    // A thickness typed in the wrong unit: a density of 3.1e7 kg/m^3 and E of 1e14 GPa are
+    // warned about on screen and in the file.
+    let odd = dir.join("odd.json");
+    let (code, stdout, err) = tapmodes(&[
+        "strip",
+        dir.join("lay-45.wav").to_str().unwrap(),
+        "--length-mm",
+        "180",
+        "--width-mm",
+        "20",
+        "--thickness-mm",
+        "0.0001",
+        "--mass-g",
+        "11.16",
+        "--out",
+        odd.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    for want in [
+        "warning: the density 3.1000e7 kg/m^3",
+        "warning: the Young's modulus E",
+        "warning: the shear modulus G",
+    ] {
+        assert!(stdout.contains(want), "{want}: {stdout}");
+        assert!(
+            std::fs::read_to_string(&odd).unwrap().contains(want),
+            "{want}"
+        );
+    }
 }
