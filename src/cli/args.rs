@@ -4,6 +4,7 @@ use crate::error::{Error, Result};
 use crate::hits::{CheckConfig, TriggerLevel};
 use crate::modes::ModeConfig;
 use crate::pipeline::{AnalysisConfig, TriggerChoice};
+use crate::run::validate::MAX_PROMINENCE_DB;
 use crate::signal::RoleChoice;
 use crate::spectra::{Basis, Estimator, SpectraConfig, WindowConfig};
 use clap::{Args, ValueEnum};
@@ -109,7 +110,7 @@ pub struct AnalysisArgs {
     pub band: Option<(f64, f64)>,
     /// Smallest peak prominence, dB [default: 3 on an FRF or transmissibility with two or
     /// more averages (the coherence vouches for the peak), else 6].
-    #[arg(long, value_name = "DB", help_heading = "Modes")]
+    #[arg(long, value_name = "DB", value_parser = parse_prominence, help_heading = "Modes")]
     pub min_prominence_db: Option<f64>,
     /// What the response sensor measures; decides how spectra are weighted before modes are
     /// read (accelerometer: divided by frequency; velocity, piezo, microphone: as is;
@@ -255,6 +256,24 @@ pub fn parse_non_negative(s: &str) -> std::result::Result<f64, String> {
         .ok_or_else(|| format!("'{s}' is not a number of at least 0"))
 }
 
+/// A prominence in dB, from 0 to [`MAX_PROMINENCE_DB`].
+pub fn parse_prominence(s: &str) -> std::result::Result<f64, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|v| (0.0..=MAX_PROMINENCE_DB).contains(v))
+        .ok_or_else(|| format!("'{s}' is not a prominence from 0 to {MAX_PROMINENCE_DB} dB"))
+}
+
+/// A count of at least 1.
+pub fn parse_count(s: &str) -> std::result::Result<usize, String> {
+    s.trim()
+        .parse::<usize>()
+        .ok()
+        .filter(|&n| n >= 1)
+        .ok_or_else(|| format!("'{s}' is not a whole number of at least 1"))
+}
+
 /// A probability: a number from 0 to 1.
 pub fn parse_probability(s: &str) -> std::result::Result<f64, String> {
     s.trim()
@@ -359,6 +378,20 @@ mod tests {
             help.contains(&format!("else {}]", m.min_prominence_db)),
             "{help}"
         );
+        // The drive's defaults, on every command that takes a drive.
+        for sub in ["analyze", "capture", "tui", "plot", "compare", "report"] {
+            let cmd = root.find_subcommand(sub).unwrap();
+            for (long, value) in [
+                ("cell-volts", crate::drive::NOMINAL_CELL_VOLTS),
+                ("near-pct", crate::drive::DEFAULT_NEAR_PCT),
+            ] {
+                let doc = documented(cmd, long);
+                assert!(
+                    (doc - value).abs() <= 1e-9 * value.abs().max(1.0),
+                    "{sub} --{long}: help says {doc}, the code uses {value}"
+                );
+            }
+        }
         let compare = root.find_subcommand("compare").unwrap();
         use crate::run::compare::{DEFAULT_FLOOR_DAMPING_PCT, DEFAULT_FLOOR_FREQUENCY_PCT};
         assert_eq!(documented(compare, "floor"), DEFAULT_FLOOR_FREQUENCY_PCT);
@@ -413,6 +446,141 @@ mod tests {
                 crate::cli::Cli::try_parse_from(bad).is_err(),
                 "{bad:?} accepted"
             );
+        }
+    }
+
+    /// Source options the chosen source does not use are refused (as `--rate` without
+    /// `--columns` is), zero rates and hit counts are rejected, and prominences must lie
+    /// from 0 to `MAX_PROMINENCE_DB`; the defaults alone trigger none of it.
+    #[test]
+    fn source_and_capture_options_are_checked() {
+        use clap::Parser;
+        use clap::error::ErrorKind;
+        let parse = |args: &[&str]| crate::cli::Cli::try_parse_from(args);
+        for (bad, kind, needle) in [
+            (
+                &["tapmodes", "capture", "--demo", "--fast", "--hits", "0"][..],
+                ErrorKind::ValueValidation,
+                "at least 1",
+            ),
+            (
+                &[
+                    "tapmodes",
+                    "capture",
+                    "--serial",
+                    "/dev/null",
+                    "--baud",
+                    "0",
+                ],
+                ErrorKind::ValueValidation,
+                "--baud",
+            ),
+            (
+                &["tapmodes", "capture", "--audio", "--audio-rate", "0"],
+                ErrorKind::ValueValidation,
+                "--audio-rate",
+            ),
+            (
+                &["tapmodes", "capture", "--baud", "9600"],
+                ErrorKind::MissingRequiredArgument,
+                "--serial",
+            ),
+            (
+                &["tapmodes", "capture", "--demo", "--baud", "9600"],
+                ErrorKind::ArgumentConflict,
+                "--baud",
+            ),
+            (
+                &["tapmodes", "tui", "--replay", "a.wav", "--baud", "9600"],
+                ErrorKind::ArgumentConflict,
+                "--baud",
+            ),
+            (
+                &["tapmodes", "tui", "--audio-rate", "44100"],
+                ErrorKind::MissingRequiredArgument,
+                "--audio",
+            ),
+            (
+                &["tapmodes", "tui", "--demo", "--audio-rate", "44100"],
+                ErrorKind::ArgumentConflict,
+                "--audio-rate",
+            ),
+            (
+                &[
+                    "tapmodes",
+                    "capture",
+                    "--serial",
+                    "/dev/null",
+                    "--audio-rate",
+                    "8000",
+                ],
+                ErrorKind::ArgumentConflict,
+                "--audio-rate",
+            ),
+            (
+                &[
+                    "tapmodes",
+                    "capture",
+                    "--serial",
+                    "/dev/null",
+                    "--seed",
+                    "3",
+                ],
+                ErrorKind::ArgumentConflict,
+                "--seed",
+            ),
+            (
+                &["tapmodes", "capture", "--replay", "a.wav", "--seed", "3"],
+                ErrorKind::ArgumentConflict,
+                "--seed",
+            ),
+            (
+                &["tapmodes", "capture", "--serial", "/dev/null", "--fast"],
+                ErrorKind::ArgumentConflict,
+                "--fast",
+            ),
+            (
+                &["tapmodes", "analyze", "a.wav", "--min-prominence-db=-5"],
+                ErrorKind::ValueValidation,
+                "from 0 to 150 dB",
+            ),
+            (
+                &["tapmodes", "analyze", "a.wav", "--min-prominence-db=1e9"],
+                ErrorKind::ValueValidation,
+                "from 0 to 150 dB",
+            ),
+            (
+                &["tapmodes", "capture", "--min-prominence-db=nan"],
+                ErrorKind::ValueValidation,
+                "from 0 to 150 dB",
+            ),
+        ] {
+            let e = parse(bad).expect_err(&format!("{bad:?} accepted"));
+            assert_eq!(e.kind(), kind, "{bad:?}: {e}");
+            assert!(e.to_string().contains(needle), "{bad:?}: {e}");
+        }
+        for good in [
+            &["tapmodes", "capture"][..],
+            &["tapmodes", "tui"],
+            &[
+                "tapmodes", "capture", "--demo", "--fast", "--hits", "1", "--seed", "2",
+            ],
+            &[
+                "tapmodes",
+                "capture",
+                "--serial",
+                "/dev/null",
+                "--baud",
+                "9600",
+            ],
+            &["tapmodes", "capture", "--audio", "--audio-rate", "44100"],
+            &["tapmodes", "capture", "--replay", "a.wav", "--fast"],
+            &["tapmodes", "analyze", "a.wav", "--min-prominence-db", "0"],
+            &["tapmodes", "analyze", "a.wav", "--min-prominence-db", "150"],
+        ] {
+            if let Err(e) = parse(good) {
+                panic!("{good:?} refused: {e}");
+            }
         }
     }
 
