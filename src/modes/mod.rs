@@ -1,9 +1,9 @@
 //! Mode finding: peaks above the noise floor, refined, with half-power damping and flags.
 
 pub mod fit;
-pub mod halfpower;
-pub mod leftout;
-pub mod peaks;
+pub(crate) mod halfpower;
+pub(crate) mod leftout;
+pub(crate) mod peaks;
 pub mod powerfit;
 pub mod ringdown;
 mod search;
