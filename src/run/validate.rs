@@ -421,12 +421,16 @@ mod tests {
         m.min_prominence_db = 0.0;
         assert!(check_modes(&m, 48_000.0, "t").is_ok());
         for bad in [-5.0, 1e9, MAX_PROMINENCE_DB + 1.0, f64::NAN, f64::INFINITY] {
-            let mut m = ModeConfig::default();
-            m.min_prominence_db = bad;
+            let m = ModeConfig {
+                min_prominence_db: bad,
+                ..ModeConfig::default()
+            };
             let e = check_modes(&m, 48_000.0, "run file 'a.json'").unwrap_err();
             assert!(e.message().contains("from 0 to 150 dB"), "{e}");
-            let mut m = ModeConfig::default();
-            m.min_prominence_coherent_db = bad;
+            let m = ModeConfig {
+                min_prominence_coherent_db: bad,
+                ..ModeConfig::default()
+            };
             assert!(check_modes(&m, 48_000.0, "t").is_err(), "{bad}");
         }
     }
