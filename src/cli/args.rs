@@ -455,128 +455,55 @@ mod tests {
     #[test]
     fn source_and_capture_options_are_checked() {
         use clap::Parser;
-        use clap::error::ErrorKind;
-        let parse = |args: &[&str]| crate::cli::Cli::try_parse_from(args);
+        use clap::error::ErrorKind::{
+            ArgumentConflict as Conflict, MissingRequiredArgument as Missing,
+            ValueValidation as Value,
+        };
+        let parse = |args: &str| {
+            crate::cli::Cli::try_parse_from(["tapmodes"].into_iter().chain(args.split(' ')))
+        };
         for (bad, kind, needle) in [
+            ("capture --demo --fast --hits 0", Value, "at least 1"),
+            ("capture --serial /dev/null --baud 0", Value, "--baud"),
+            ("capture --audio --audio-rate 0", Value, "--audio-rate"),
+            ("capture --baud 9600", Missing, "--serial"),
+            ("capture --demo --baud 9600", Conflict, "--baud"),
+            ("tui --replay a.wav --baud 9600", Conflict, "--baud"),
+            ("tui --audio-rate 44100", Missing, "--audio"),
+            ("tui --demo --audio-rate 44100", Conflict, "--audio-rate"),
             (
-                &["tapmodes", "capture", "--demo", "--fast", "--hits", "0"][..],
-                ErrorKind::ValueValidation,
-                "at least 1",
-            ),
-            (
-                &[
-                    "tapmodes",
-                    "capture",
-                    "--serial",
-                    "/dev/null",
-                    "--baud",
-                    "0",
-                ],
-                ErrorKind::ValueValidation,
-                "--baud",
-            ),
-            (
-                &["tapmodes", "capture", "--audio", "--audio-rate", "0"],
-                ErrorKind::ValueValidation,
+                "capture --serial /dev/null --audio-rate 8000",
+                Conflict,
                 "--audio-rate",
             ),
+            ("capture --serial /dev/null --seed 3", Conflict, "--seed"),
+            ("capture --replay a.wav --seed 3", Conflict, "--seed"),
+            ("capture --serial /dev/null --fast", Conflict, "--fast"),
             (
-                &["tapmodes", "capture", "--baud", "9600"],
-                ErrorKind::MissingRequiredArgument,
-                "--serial",
-            ),
-            (
-                &["tapmodes", "capture", "--demo", "--baud", "9600"],
-                ErrorKind::ArgumentConflict,
-                "--baud",
-            ),
-            (
-                &["tapmodes", "tui", "--replay", "a.wav", "--baud", "9600"],
-                ErrorKind::ArgumentConflict,
-                "--baud",
-            ),
-            (
-                &["tapmodes", "tui", "--audio-rate", "44100"],
-                ErrorKind::MissingRequiredArgument,
-                "--audio",
-            ),
-            (
-                &["tapmodes", "tui", "--demo", "--audio-rate", "44100"],
-                ErrorKind::ArgumentConflict,
-                "--audio-rate",
-            ),
-            (
-                &[
-                    "tapmodes",
-                    "capture",
-                    "--serial",
-                    "/dev/null",
-                    "--audio-rate",
-                    "8000",
-                ],
-                ErrorKind::ArgumentConflict,
-                "--audio-rate",
-            ),
-            (
-                &[
-                    "tapmodes",
-                    "capture",
-                    "--serial",
-                    "/dev/null",
-                    "--seed",
-                    "3",
-                ],
-                ErrorKind::ArgumentConflict,
-                "--seed",
-            ),
-            (
-                &["tapmodes", "capture", "--replay", "a.wav", "--seed", "3"],
-                ErrorKind::ArgumentConflict,
-                "--seed",
-            ),
-            (
-                &["tapmodes", "capture", "--serial", "/dev/null", "--fast"],
-                ErrorKind::ArgumentConflict,
-                "--fast",
-            ),
-            (
-                &["tapmodes", "analyze", "a.wav", "--min-prominence-db=-5"],
-                ErrorKind::ValueValidation,
+                "analyze a.wav --min-prominence-db=-5",
+                Value,
                 "from 0 to 150 dB",
             ),
             (
-                &["tapmodes", "analyze", "a.wav", "--min-prominence-db=1e9"],
-                ErrorKind::ValueValidation,
+                "analyze a.wav --min-prominence-db=1e9",
+                Value,
                 "from 0 to 150 dB",
             ),
-            (
-                &["tapmodes", "capture", "--min-prominence-db=nan"],
-                ErrorKind::ValueValidation,
-                "from 0 to 150 dB",
-            ),
+            ("capture --min-prominence-db=nan", Value, "from 0 to 150 dB"),
         ] {
             let e = parse(bad).expect_err(&format!("{bad:?} accepted"));
             assert_eq!(e.kind(), kind, "{bad:?}: {e}");
             assert!(e.to_string().contains(needle), "{bad:?}: {e}");
         }
         for good in [
-            &["tapmodes", "capture"][..],
-            &["tapmodes", "tui"],
-            &[
-                "tapmodes", "capture", "--demo", "--fast", "--hits", "1", "--seed", "2",
-            ],
-            &[
-                "tapmodes",
-                "capture",
-                "--serial",
-                "/dev/null",
-                "--baud",
-                "9600",
-            ],
-            &["tapmodes", "capture", "--audio", "--audio-rate", "44100"],
-            &["tapmodes", "capture", "--replay", "a.wav", "--fast"],
-            &["tapmodes", "analyze", "a.wav", "--min-prominence-db", "0"],
-            &["tapmodes", "analyze", "a.wav", "--min-prominence-db", "150"],
+            "capture",
+            "tui",
+            "capture --demo --fast --hits 1 --seed 2",
+            "capture --serial /dev/null --baud 9600",
+            "capture --audio --audio-rate 44100",
+            "capture --replay a.wav --fast",
+            "analyze a.wav --min-prominence-db 0",
+            "analyze a.wav --min-prominence-db 150",
         ] {
             if let Err(e) = parse(good) {
                 panic!("{good:?} refused: {e}");
