@@ -4,6 +4,7 @@ use crate::error::{Error, Result};
 use crate::hits::{CheckConfig, TriggerLevel};
 use crate::modes::ModeConfig;
 use crate::pipeline::{AnalysisConfig, TriggerChoice};
+use crate::run::validate::MAX_PROMINENCE_DB;
 use crate::signal::RoleChoice;
 use crate::spectra::{Basis, Estimator, SpectraConfig, WindowConfig};
 use clap::{Args, ValueEnum};
@@ -109,7 +110,7 @@ pub struct AnalysisArgs {
     pub band: Option<(f64, f64)>,
     /// Smallest peak prominence, dB [default: 3 on an FRF or transmissibility with two or
     /// more averages (the coherence vouches for the peak), else 6].
-    #[arg(long, value_name = "DB", help_heading = "Modes")]
+    #[arg(long, value_name = "DB", value_parser = parse_prominence, help_heading = "Modes")]
     pub min_prominence_db: Option<f64>,
     /// What the response sensor measures; decides how spectra are weighted before modes are
     /// read (accelerometer: divided by frequency; velocity, piezo, microphone: as is;
@@ -257,6 +258,24 @@ pub fn parse_non_negative(s: &str) -> std::result::Result<f64, String> {
         .ok_or_else(|| format!("'{s}' is not a number of at least 0"))
 }
 
+/// A prominence in dB, from 0 to [`MAX_PROMINENCE_DB`].
+pub fn parse_prominence(s: &str) -> std::result::Result<f64, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|v| (0.0..=MAX_PROMINENCE_DB).contains(v))
+        .ok_or_else(|| format!("'{s}' is not a prominence from 0 to {MAX_PROMINENCE_DB} dB"))
+}
+
+/// A count of at least 1.
+pub fn parse_count(s: &str) -> std::result::Result<usize, String> {
+    s.trim()
+        .parse::<usize>()
+        .ok()
+        .filter(|&n| n >= 1)
+        .ok_or_else(|| format!("'{s}' is not a whole number of at least 1"))
+}
+
 /// A probability: a number from 0 to 1.
 pub fn parse_probability(s: &str) -> std::result::Result<f64, String> {
     s.trim()
@@ -361,6 +380,20 @@ mod tests {
             help.contains(&format!("else {}]", m.min_prominence_db)),
             "{help}"
         );
+        // The drive's defaults, on every command that takes a drive.
+        for sub in ["analyze", "capture", "tui", "plot", "compare", "report"] {
+            let cmd = root.find_subcommand(sub).unwrap();
+            for (long, value) in [
+                ("cell-volts", crate::drive::NOMINAL_CELL_VOLTS),
+                ("near-pct", crate::drive::DEFAULT_NEAR_PCT),
+            ] {
+                let doc = documented(cmd, long);
+                assert!(
+                    (doc - value).abs() <= 1e-9 * value.abs().max(1.0),
+                    "{sub} --{long}: help says {doc}, the code uses {value}"
+                );
+            }
+        }
         let compare = root.find_subcommand("compare").unwrap();
         use crate::run::compare::{DEFAULT_FLOOR_DAMPING_PCT, DEFAULT_FLOOR_FREQUENCY_PCT};
         assert_eq!(documented(compare, "floor"), DEFAULT_FLOOR_FREQUENCY_PCT);
@@ -415,6 +448,68 @@ mod tests {
                 crate::cli::Cli::try_parse_from(bad).is_err(),
                 "{bad:?} accepted"
             );
+        }
+    }
+
+    /// Source options the chosen source does not use are refused (as `--rate` without
+    /// `--columns` is), zero rates and hit counts are rejected, and prominences must lie
+    /// from 0 to `MAX_PROMINENCE_DB`; the defaults alone trigger none of it.
+    #[test]
+    fn source_and_capture_options_are_checked() {
+        use clap::Parser;
+        use clap::error::ErrorKind::{
+            ArgumentConflict as Conflict, MissingRequiredArgument as Missing,
+            ValueValidation as Value,
+        };
+        let parse = |args: &str| {
+            crate::cli::Cli::try_parse_from(["tapmodes"].into_iter().chain(args.split(' ')))
+        };
+        for (bad, kind, needle) in [
+            ("capture --demo --fast --hits 0", Value, "at least 1"),
+            ("capture --serial /dev/null --baud 0", Value, "--baud"),
+            ("capture --audio --audio-rate 0", Value, "--audio-rate"),
+            ("capture --baud 9600", Missing, "--serial"),
+            ("capture --demo --baud 9600", Conflict, "--baud"),
+            ("tui --replay a.wav --baud 9600", Conflict, "--baud"),
+            ("tui --audio-rate 44100", Missing, "--audio"),
+            ("tui --demo --audio-rate 44100", Conflict, "--audio-rate"),
+            (
+                "capture --serial /dev/null --audio-rate 8000",
+                Conflict,
+                "--audio-rate",
+            ),
+            ("capture --serial /dev/null --seed 3", Conflict, "--seed"),
+            ("capture --replay a.wav --seed 3", Conflict, "--seed"),
+            ("capture --serial /dev/null --fast", Conflict, "--fast"),
+            (
+                "analyze a.wav --min-prominence-db=-5",
+                Value,
+                "from 0 to 150 dB",
+            ),
+            (
+                "analyze a.wav --min-prominence-db=1e9",
+                Value,
+                "from 0 to 150 dB",
+            ),
+            ("capture --min-prominence-db=nan", Value, "from 0 to 150 dB"),
+        ] {
+            let e = parse(bad).expect_err(&format!("{bad:?} accepted"));
+            assert_eq!(e.kind(), kind, "{bad:?}: {e}");
+            assert!(e.to_string().contains(needle), "{bad:?}: {e}");
+        }
+        for good in [
+            "capture",
+            "tui",
+            "capture --demo --fast --hits 1 --seed 2",
+            "capture --serial /dev/null --baud 9600",
+            "capture --audio --audio-rate 44100",
+            "capture --replay a.wav --fast",
+            "analyze a.wav --min-prominence-db 0",
+            "analyze a.wav --min-prominence-db 150",
+        ] {
+            if let Err(e) = parse(good) {
+                panic!("{good:?} refused: {e}");
+            }
         }
     }
 

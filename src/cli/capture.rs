@@ -24,8 +24,8 @@ pub struct CaptureArgs {
     pub analysis: AnalysisArgs,
     #[command(flatten)]
     pub drive: super::drive_args::DriveArgs,
-    /// Stop after this many accepted hits.
-    #[arg(long, default_value_t = 5, value_name = "N", help_heading = "Trigger")]
+    /// Stop after this many accepted hits (at least 1).
+    #[arg(long, default_value_t = 5, value_name = "N", value_parser = super::args::parse_count, help_heading = "Trigger")]
     pub hits: usize,
     /// Folder for the run files (created if missing).
     #[arg(

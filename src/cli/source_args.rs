@@ -20,6 +20,9 @@ pub struct SourceArgs {
         long,
         default_value_t = 921_600,
         value_name = "N",
+        value_parser = clap::value_parser!(u32).range(1..),
+        requires = "serial",
+        conflicts_with_all = ["audio", "replay", "demo"],
         help_heading = "Source"
     )]
     pub baud: u32,
@@ -41,11 +44,14 @@ pub struct SourceArgs {
     /// Sound-card input (optionally its name; see `tapmodes devices`). Needs the audio feature.
     #[arg(long, value_name = "NAME", num_args = 0..=1, default_missing_value = "", group = "src", help_heading = "Source")]
     pub audio: Option<String>,
-    /// Sample rate to ask of the sound card, Hz.
+    /// Sample rate to ask of the sound card, Hz (with --audio).
     #[arg(
         long,
         default_value_t = 48_000,
         value_name = "HZ",
+        value_parser = clap::value_parser!(u32).range(1..),
+        requires = "audio",
+        conflicts_with_all = ["serial", "replay", "demo"],
         help_heading = "Source"
     )]
     pub audio_rate: u32,
@@ -55,11 +61,18 @@ pub struct SourceArgs {
     /// The simulated bench (optionally a preset; see `tapmodes simulate --list`).
     #[arg(long, value_name = "PRESET", num_args = 0..=1, default_missing_value = "tm9-arm-solid", group = "src", help_heading = "Source")]
     pub demo: Option<String>,
-    /// Seed of the simulated bench.
-    #[arg(long, default_value_t = 1, value_name = "N", help_heading = "Source")]
+    /// Seed of the simulated bench (not with another source).
+    #[arg(
+        long,
+        default_value_t = 1,
+        value_name = "N",
+        conflicts_with_all = ["serial", "audio", "replay"],
+        help_heading = "Source"
+    )]
     pub seed: u64,
-    /// Replay and simulate as fast as possible instead of in real time.
-    #[arg(long, help_heading = "Source")]
+    /// Replay and simulate as fast as possible instead of in real time (not with a live
+    /// source).
+    #[arg(long, conflicts_with_all = ["serial", "audio"], help_heading = "Source")]
     pub fast: bool,
 }
 

@@ -3,7 +3,7 @@
 use crate::error::Result;
 use crate::hits::{CheckConfig, Hit, HitDetector, TriggerConfig, TriggerLevel, Verdict};
 pub mod align;
-pub mod offload;
+pub(crate) mod offload;
 pub mod result;
 
 use crate::modes::ModeConfig;

@@ -3,10 +3,10 @@
 pub(crate) mod atomic;
 pub mod compare;
 pub mod curve_read;
-pub mod modes_csv;
-pub mod naming;
+pub(crate) mod modes_csv;
+pub(crate) mod naming;
 pub mod recording;
-pub mod reopen;
+pub(crate) mod reopen;
 pub(crate) mod safe_path;
 pub(crate) mod validate;
 

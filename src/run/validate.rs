@@ -38,6 +38,9 @@ pub const MEMORY_BUDGET: u64 = 1 << 30;
 pub const RETAINED_RECORDS: u64 = 16;
 /// Bytes per padded FFT point: input, spectrum and a dozen accumulated one-sided arrays.
 pub const FFT_BYTES_PER_POINT: u64 = 16 * 12;
+/// Largest prominence a peak may be asked for, dB: more than a 24-bit converter's whole
+/// range (about 144 dB), so no peak could ever pass it.
+pub const MAX_PROMINENCE_DB: f64 = 150.0;
 /// Longest channel name, unit, label or note kept, in characters.
 pub const MAX_TEXT_CHARS: usize = 4096;
 
@@ -221,7 +224,12 @@ fn check_modes(m: &ModeConfig, fs: f64, what: &str) -> Result<()> {
             fs / 2.0
         )));
     }
-    finite(m.min_prominence_db, "the smallest prominence", what)?;
+    prominence(m.min_prominence_db, "the smallest prominence", what)?;
+    prominence(
+        m.min_prominence_coherent_db,
+        "the smallest prominence (coherent curves)",
+        what,
+    )?;
     finite(m.min_above_floor_db, "the height above the floor", what)?;
     finite(
         m.min_above_floor_coherent_db,
@@ -261,6 +269,15 @@ fn finite(v: f64, name: &str, what: &str) -> Result<()> {
     if !v.is_finite() {
         return Err(Error::new(format!(
             "{what}: {name} must be a finite number, not {v}"
+        )));
+    }
+    Ok(())
+}
+
+fn prominence(v: f64, name: &str, what: &str) -> Result<()> {
+    if !(0.0..=MAX_PROMINENCE_DB).contains(&v) {
+        return Err(Error::new(format!(
+            "{what}: {name} must be from 0 to {MAX_PROMINENCE_DB} dB, not {v}"
         )));
     }
     Ok(())
@@ -394,6 +411,27 @@ mod tests {
                     .starts_with("run file 'a.json': the mass (variant.mass_g)"),
                 "{e}"
             );
+        }
+    }
+
+    #[test]
+    fn prominences() {
+        let mut m = ModeConfig::default();
+        assert!(check_modes(&m, 48_000.0, "t").is_ok());
+        m.min_prominence_db = 0.0;
+        assert!(check_modes(&m, 48_000.0, "t").is_ok());
+        for bad in [-5.0, 1e9, MAX_PROMINENCE_DB + 1.0, f64::NAN, f64::INFINITY] {
+            let m = ModeConfig {
+                min_prominence_db: bad,
+                ..ModeConfig::default()
+            };
+            let e = check_modes(&m, 48_000.0, "run file 'a.json'").unwrap_err();
+            assert!(e.message().contains("from 0 to 150 dB"), "{e}");
+            let m = ModeConfig {
+                min_prominence_coherent_db: bad,
+                ..ModeConfig::default()
+            };
+            assert!(check_modes(&m, 48_000.0, "t").is_err(), "{bad}");
         }
     }
 

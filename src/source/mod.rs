@@ -6,7 +6,7 @@ pub mod live;
 pub mod serial;
 pub mod simulator;
 pub mod wav;
-pub mod wav_header;
+pub(crate) mod wav_header;
 
 use crate::error::Result;
 use crate::signal::{Block, StreamInfo};

@@ -53,11 +53,15 @@ impl SampleKind {
         }
     }
 
+    /// Float samples (the tests' reference decoding; `wav.rs` converts in bulk).
+    #[cfg(test)]
     pub fn is_float(self) -> bool {
         matches!(self, SampleKind::F32 | SampleKind::F64)
     }
 
-    /// Decode one sample from exactly `self.bytes()` bytes.
+    /// Decode one sample from exactly `self.bytes()` bytes: the tests' reference for the
+    /// bulk conversion in `wav.rs`.
+    #[cfg(test)]
     pub fn decode(self, b: &[u8]) -> f64 {
         match self {
             SampleKind::U8 => f64::from(b[0]) - 128.0,

@@ -1,7 +1,7 @@
 //! Spectral stage: windows, FFT, averaging over hits, and the estimators read from it.
 
 pub mod averager;
-pub mod window;
+pub(crate) mod window;
 
 use crate::signal::Roles;
 pub use averager::Transformer;

@@ -177,6 +177,53 @@ fn simulate_analyze_compare_round_trip() {
     );
 }
 
+/// `capture` refuses, as argument errors naming the option, what it would otherwise turn
+/// into an empty run or ignore: no hits wanted, zero rates, options of another source,
+/// prominences below 0 or beyond any converter's range. Nothing is written.
+#[test]
+fn capture_refuses_empty_runs_and_options_of_another_source() {
+    let dir = temp_dir("capture-args");
+    let out = dir.join("runs");
+    let o = out.to_str().unwrap();
+    for (args, needle) in [
+        (&["--hits", "0"][..], "--hits"),
+        (&["--baud", "0"], "--baud"),
+        (&["--baud", "9600"], "--baud"),
+        (&["--audio-rate", "0"], "--audio-rate"),
+        (&["--audio-rate", "44100"], "--audio-rate"),
+        (&["--min-prominence-db=-5"], "--min-prominence-db"),
+        (&["--min-prominence-db=1e9"], "--min-prominence-db"),
+    ] {
+        let mut all = vec!["capture", "--demo", "--fast", "--out", o];
+        all.extend(args);
+        let (code, stdout, stderr) = tapmodes(&all);
+        assert_eq!(code, 2, "{all:?}: {stdout}{stderr}");
+        assert!(stderr.starts_with("error:"), "{all:?}: {stderr}");
+        assert!(stderr.contains(needle), "{all:?}: {stderr}");
+        assert!(!stderr.contains("panicked"), "{all:?}: {stderr}");
+        assert!(!out.exists(), "{all:?} created {}", out.display());
+    }
+    for args in [
+        &["--serial", "/dev/null", "--seed", "2"][..],
+        &["--serial", "/dev/null", "--fast"],
+    ] {
+        let mut all = vec!["capture", "--out", o];
+        all.extend(args);
+        let (code, _, stderr) = tapmodes(&all);
+        assert_eq!(code, 2, "{all:?}: {stderr}");
+        assert!(stderr.contains("cannot be used with"), "{all:?}: {stderr}");
+        assert!(!out.exists(), "{all:?} created {}", out.display());
+    }
+    // One hit is enough, and the defaults of the other sources' options do not count as given.
+    let (code, stdout, stderr) = tapmodes(&[
+        "capture", "--demo", "--fast", "--hits", "1", "--seed", "2", "--out", o,
+    ]);
+    assert_eq!(code, 0, "{stdout}{stderr}");
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("variant.json")).unwrap()).unwrap();
+    assert_eq!(run["hits_accepted"], 1, "{stdout}");
+}
+
 /// Live equals offline: capturing from `--replay` gives the same modes as `analyze` on
 /// the same WAV (same pipeline, blocks of a different size).
 #[test]

@@ -1,4 +1,5 @@
-//! Helpers shared by the integration tests: simulated recordings and WAV writers.
+//! Helpers shared by the integration tests: simulated recordings, WAV writers, scratch
+//! folders and the built binary.
 #![allow(dead_code)]
 
 use tapmodes::source::Source;
@@ -32,6 +33,8 @@ pub fn plan_with_modes(modes: &[(f64, f64, f64)], seed: u64) -> BenchPlan {
     p
 }
 
+/// A fresh, empty scratch folder of this test process; `name` must be unique across the
+/// test binary (prefix it with the test file's area, e.g. `tui-view-overlays`).
 pub fn temp_dir(name: &str) -> std::path::PathBuf {
     let d = std::env::temp_dir().join(format!("tapmodes-test-{}-{name}", std::process::id()));
     let _ = std::fs::remove_dir_all(&d);
@@ -72,12 +75,19 @@ pub fn write_wav(
     w.finalize().unwrap();
 }
 
+/// Path of the built `tapmodes` binary.
+pub fn bin_path() -> &'static str {
+    env!("CARGO_BIN_EXE_tapmodes")
+}
+
+/// A command that runs the built `tapmodes` binary.
+pub fn bin() -> std::process::Command {
+    std::process::Command::new(bin_path())
+}
+
 /// Run the binary; returns (exit code, stdout, stderr).
 pub fn tapmodes(args: &[&str]) -> (i32, String, String) {
-    let out = std::process::Command::new(env!("CARGO_BIN_EXE_tapmodes"))
-        .args(args)
-        .output()
-        .unwrap();
+    let out = bin().args(args).output().unwrap();
     (
         out.status.code().unwrap_or(-1),
         String::from_utf8_lossy(&out.stdout).into_owned(),

@@ -5,11 +5,9 @@
 //! f = KV x V x throttle / 60 (common practice, no source); 3.7 V per cell nominal (common
 //! practice, no source).
 
-use std::path::{Path, PathBuf};
-use std::process::Command;
+use crate::common::{bin, temp_dir};
+use std::path::Path;
 use tapmodes::drive::{Drive, Verdict, judge};
-
-const BIN: &str = env!("CARGO_BIN_EXE_tapmodes");
 
 fn close(a: f64, b: f64) -> bool {
     // Band edges to 0.1 %.
@@ -70,19 +68,12 @@ fn worked_example() {
     }
 }
 
-fn scratch(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tapmodes-drive-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
-
 fn root() -> &'static Path {
     Path::new(env!("CARGO_MANIFEST_DIR"))
 }
 
 fn run(args: &[&str]) -> (i32, String, String) {
-    let o = Command::new(BIN).args(args).output().unwrap();
+    let o = bin().args(args).output().unwrap();
     (
         o.status.code().unwrap_or(-1),
         String::from_utf8_lossy(&o.stdout).into_owned(),
@@ -92,7 +83,7 @@ fn run(args: &[&str]) -> (i32, String, String) {
 
 #[test]
 fn bad_drive_input_is_one_sentence_and_a_nonzero_exit() {
-    let dir = scratch("bad");
+    let dir = temp_dir("drive-bands-bad");
     let wav = root().join("recordings/arm-solid.wav");
     let out = dir.join("x.json");
     let bad_file = dir.join("bad.drive");
@@ -204,7 +195,7 @@ fn modes_of(json: &Path) -> (Vec<f64>, Vec<serde_json::Value>, serde_json::Value
 /// band while the lightening holes keep it clear.
 #[test]
 fn demo_recordings_verdicts_and_compare() {
-    let dir = scratch("demo");
+    let dir = temp_dir("drive-bands-demo");
     let drive = root().join("recordings/tm9.drive");
     let edges = [
         (168.35, 481.0),

@@ -1,21 +1,14 @@
 //! The motor bands in the app: shaded named columns over the curve at 80x24 and 160x48,
 //! the logarithmic axis, the band column of the mode table and the soft mount's isolation.
 
+use crate::common::temp_dir;
 use ratatui::Terminal;
 use ratatui::backend::TestBackend;
 use ratatui::buffer::Buffer;
-use std::path::PathBuf;
 use tapmodes::drive::Drive;
 use tapmodes::signal::RoleChoice;
 use tapmodes::tui::drive_view::BAND_COLORS;
 use tapmodes::tui::{App, Launch};
-
-fn scratch(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tapmodes-drive-view-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
 
 /// The worked example's drive: 1300 rpm/V, 6 cells at 3.7 V, 35-100 %, 3 blades.
 fn drive() -> Drive {
@@ -68,7 +61,7 @@ fn first_columns(b: &Buffer) -> Vec<Option<u16>> {
 
 #[test]
 fn bands_are_shaded_named_columns_at_both_sizes() {
-    let dir = scratch("sizes");
+    let dir = temp_dir("drive-view-sizes");
     let app = app("tm9-arm-solid", 9.0, &dir, false);
     for (w, h) in [(80, 24), (160, 48)] {
         let b = screen(&app, w, h);
@@ -99,7 +92,7 @@ fn bands_are_shaded_named_columns_at_both_sizes() {
 
 #[test]
 fn log_axis_spreads_the_low_bands() {
-    let dir = scratch("log");
+    let dir = temp_dir("drive-view-log");
     let mut app = app("tm9-arm-solid", 9.0, &dir, false);
     // Column spans rotation->2x and 2x->3x start: on a linear axis equal (168.35 Hz each),
     // on a log axis in the ratio log(2) / log(1.5) = 1.71.
@@ -123,7 +116,7 @@ fn log_axis_spreads_the_low_bands() {
 
 #[test]
 fn soft_mount_isolation_is_shown() {
-    let dir = scratch("mount");
+    let dir = temp_dir("drive-view-mount");
     let app = app("tm9-stack-soft", 9.0, &dir, true);
     let t = text(&screen(&app, 160, 48));
     if std::env::var_os("TAPMODES_SHOW_SCREENS").is_some() {

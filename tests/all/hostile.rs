@@ -1,7 +1,11 @@
 //! Generator of the bad-input catalogue: malformed WAVs and run files, built at test time
-//! from one good recording, each with its expected outcome. Used by `hostile_catalogue.rs`
-//! and, as seeds, by `hostile_fuzz.rs`.
+//! from one good recording, each with its expected outcome. Used by `hostile_wavs.rs` and
+//! `hostile_runs.rs` (`check` runs one case through the binary), and as seeds by
+//! `hostile_fuzz.rs`.
 #![allow(dead_code)]
+
+use crate::common::{bin, simulate};
+use tapmodes::source::simulator::presets::preset;
 
 /// What a case must give.
 #[derive(Debug, Clone)]
@@ -172,4 +176,44 @@ pub fn mutate(rng: &mut Rng, b: &mut Vec<u8>) {
         }
         _ => b.truncate(i),
     }
+}
+
+/// Run the binary; check the outcome against `e`. Returns a description of a mismatch.
+pub fn check(args: &[&str], e: &Expect) -> Option<String> {
+    let out = bin().args(args).output().unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    if err.contains("panicked") || stdout.contains('\u{1b}') || err.contains('\u{1b}') {
+        return Some(format!("{args:?}: panic or raw escape: {err}"));
+    }
+    match e {
+        Expect::Accept => (out.status.code() != Some(0)).then(|| {
+            format!(
+                "{args:?}: expected success, got {:?}: {err}",
+                out.status.code()
+            )
+        }),
+        Expect::Refuse(needle) => {
+            let lines: Vec<&str> = err
+                .lines()
+                .filter(|l| l.starts_with("tapmodes: "))
+                .collect();
+            if out.status.code() != Some(1) || lines.len() != 1 {
+                return Some(format!(
+                    "{args:?}: expected exit 1 and one sentence, got {:?}: {err}",
+                    out.status.code()
+                ));
+            }
+            (!lines[0].to_lowercase().contains(needle))
+                .then(|| format!("{args:?}: '{}' lacks '{needle}'", lines[0]))
+        }
+    }
+}
+
+/// The good recording every case is made from: 3 s of the braced arm, and its rate.
+pub fn good_channels() -> (Vec<Vec<f64>>, u32) {
+    let plan = preset("tm9-arm-braced", 4).unwrap();
+    let fs = plan.sample_rate as u32;
+    let (chans, _) = simulate(plan, 3.0);
+    (chans, fs)
 }

@@ -11,12 +11,12 @@
 //! or one sentence with exit 1, never a panic.
 #![cfg(unix)]
 
-use crate::common::{simulate, temp_dir};
+use crate::common::{bin, simulate, temp_dir};
 use crate::hostile::{pcm, wav};
 use std::io::{Read, Write};
 use std::os::unix::process::ExitStatusExt;
 use std::path::{Path, PathBuf};
-use std::process::{Child, Command, Stdio};
+use std::process::{Child, Stdio};
 use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
@@ -93,7 +93,7 @@ struct Running {
 }
 
 fn start(src: Src, dir: &Path, replay: &Path) -> Running {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_tapmodes"));
+    let mut cmd = bin();
     cmd.args(["capture", "--hits", "1000", "--out", dir.to_str().unwrap()]);
     let mut device = None;
     match src {
@@ -137,10 +137,7 @@ struct Round {
 /// Run the binary; the exit code and the last line of stderr, checked for one sentence and
 /// no panic.
 fn analyze(args: &[&str]) -> (i32, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_tapmodes"))
-        .args(args)
-        .output()
-        .unwrap();
+    let out = bin().args(args).output().unwrap();
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(!err.contains("panicked"), "{args:?}: {err}");
     let code = out.status.code().unwrap_or(-1);

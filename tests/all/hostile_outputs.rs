@@ -3,16 +3,11 @@
 //! operator's verdicts, label and note; SIGINT, SIGTERM and SIGHUP end a capture quickly
 //! with the WAV and the JSON consistent.
 
-use crate::common::{simulate, temp_dir};
+use crate::common::{bin, simulate, temp_dir};
 use crate::hostile::{pcm, wav};
 use std::path::Path;
-use std::process::Command;
 use std::time::{Duration, Instant};
 use tapmodes::source::simulator::presets::preset;
-
-fn bin() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_tapmodes"))
-}
 
 fn run(args: &[&str]) -> (i32, String) {
     let out = bin().args(args).output().unwrap();

@@ -2,8 +2,9 @@
 //! bench fed synchronously): keys that must stay visible, review of an older tap, the
 //! recording state, the soft mount, the help pages; and the files a session leaves.
 
+use crate::common::temp_dir;
 use ratatui::crossterm::event::KeyCode;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use tapmodes::pipeline::AnalysisConfig;
 use tapmodes::signal::{RoleChoice, StreamInfo};
 use tapmodes::source::Source;
@@ -15,10 +16,6 @@ use tapmodes::tui::view::fmt_sig;
 use tapmodes::tui::{App, Launch};
 
 const SIZES: [(u16, u16); 2] = [(80, 24), (160, 48)];
-
-fn scratch(name: &str) -> PathBuf {
-    crate::common::temp_dir(&format!("tui-scr-{name}"))
-}
 
 /// A demo preset with taps on the simulator's schedule (0.8 s, then every ~2.5 s).
 fn demo(preset_name: &str, seconds: f64, dir: &Path) -> App {
@@ -49,7 +46,7 @@ fn assert_footer(s: &str, what: &str) {
 
 #[test]
 fn save_runs_quit_and_help_stay_on_the_footer_in_every_view() {
-    let dir = scratch("footer");
+    let dir = temp_dir("tui-scr-footer");
     let mut app = demo("tm9-stack-soft", 9.0, &dir);
     let (kept, total) = app.model.counts();
     assert!(total >= 3 && kept == total, "{kept}/{total}");
@@ -83,7 +80,7 @@ fn save_runs_quit_and_help_stay_on_the_footer_in_every_view() {
 
 #[test]
 fn wider_screens_keep_the_source_and_the_cursor_line_whole() {
-    let dir = scratch("wide");
+    let dir = temp_dir("tui-scr-wide");
     let app = demo("tm9-stack-soft", 9.0, &dir);
     let source = app.model.header.source.clone();
     for (w, h) in [(120, 40), (160, 48)] {
@@ -109,7 +106,7 @@ fn wider_screens_keep_the_source_and_the_cursor_line_whole() {
     }
     // At 80 columns a short label leaves room for the start of the source, cut with a
     // mark, never silently.
-    let dir = scratch("wide-short");
+    let dir = temp_dir("tui-scr-wide-short");
     let mut launch = Launch::simulated("tm9-stack-soft", 1, Some(1.0), false, false, dir).unwrap();
     launch.variant = "v1".into();
     let mut short = App::headless(launch).unwrap();
@@ -121,7 +118,7 @@ fn wider_screens_keep_the_source_and_the_cursor_line_whole() {
 
 #[test]
 fn an_older_tap_shows_its_own_traces_and_verdict() {
-    let dir = scratch("older");
+    let dir = temp_dir("tui-scr-older");
     let mut app = demo("tm9-arm-solid", 9.0, &dir);
     let a = app.model.analysis.clone().unwrap();
     assert_eq!(a.hits.len(), 3);
@@ -163,7 +160,7 @@ fn an_older_tap_shows_its_own_traces_and_verdict() {
 
 #[test]
 fn enter_opens_a_tap_in_full_where_y_or_x_decide() {
-    let dir = scratch("detail");
+    let dir = temp_dir("tui-scr-detail");
     let mut plan = preset("tm9-arm-solid", 2).unwrap();
     plan.hammer.double_hit_chance = 1.0;
     let sim = Simulator::new(plan, Some(4.0), true);
@@ -210,7 +207,7 @@ fn enter_opens_a_tap_in_full_where_y_or_x_decide() {
 
 #[test]
 fn a_record_being_taken_shows_recording() {
-    let dir = scratch("rec");
+    let dir = temp_dir("tui-scr-rec");
     let launch = Launch::simulated("tm9-arm-solid", 1, Some(6.0), false, false, dir).unwrap();
     let mut app = App::headless(launch).unwrap();
     app.pump_seconds(1.0);
@@ -232,7 +229,7 @@ fn a_record_being_taken_shows_recording() {
 
 #[test]
 fn a_source_ending_inside_a_record_gives_a_tap_cut_short() {
-    let dir = scratch("cut");
+    let dir = temp_dir("tui-scr-cut");
     let launch = Launch::simulated("tm9-arm-solid", 1, Some(1.4), false, false, dir).unwrap();
     let mut app = App::headless(launch).unwrap();
     app.pump_seconds(1.0);
@@ -256,7 +253,7 @@ fn a_source_ending_inside_a_record_gives_a_tap_cut_short() {
 
 #[test]
 fn transmissibility_view_shows_the_mount_from_the_pipeline() {
-    let dir = scratch("mount");
+    let dir = temp_dir("tui-scr-mount");
     let mut app = demo("tm9-stack-soft", 9.0, &dir);
     app.press('v');
     app.press('v');
@@ -303,7 +300,7 @@ fn transmissibility_view_shows_the_mount_from_the_pipeline() {
 
 #[test]
 fn the_mount_shows_when_no_peak_passes_the_mode_tests() {
-    let dir = scratch("mount-no-modes");
+    let dir = temp_dir("tui-scr-mount-no-modes");
     let mut launch =
         Launch::simulated("tm9-stack-soft", 1, Some(9.0), true, false, dir.clone()).unwrap();
     // A search band above every mode of the stack: no mode, the mount is still fitted.
@@ -334,7 +331,7 @@ fn the_mount_shows_when_no_peak_passes_the_mode_tests() {
 
 #[test]
 fn help_pages_explain_the_words_and_the_workflow() {
-    let dir = scratch("help");
+    let dir = temp_dir("tui-scr-help");
     let mut app = demo("tm9-arm-solid", 1.0, &dir);
     app.press('?');
     assert!(app.screen(80, 24).contains("Help 1/4: keys"));
@@ -390,7 +387,7 @@ fn files(dir: &Path) -> Vec<String> {
 
 #[test]
 fn quitting_without_a_tap_leaves_no_recording() {
-    let dir = scratch("litter");
+    let dir = temp_dir("tui-scr-litter");
     let launch =
         Launch::simulated("tm9-arm-solid", 1, Some(3.0), false, false, dir.clone()).unwrap();
     let mut app = App::headless(launch).unwrap();
@@ -412,7 +409,7 @@ fn quitting_without_a_tap_leaves_no_recording() {
 
 #[test]
 fn a_session_with_taps_keeps_its_recording_and_run_file() {
-    let dir = scratch("kept");
+    let dir = temp_dir("tui-scr-kept");
     let mut app = demo("tm9-arm-solid", 2.5, &dir);
     assert_eq!(app.model.counts().1, 1);
     app.shutdown();
@@ -428,7 +425,7 @@ fn a_session_with_taps_keeps_its_recording_and_run_file() {
 
 #[test]
 fn a_failed_start_leaves_no_empty_recording() {
-    let dir = scratch("failed");
+    let dir = temp_dir("tui-scr-failed");
     let bad = StreamInfo {
         source: "a stream with no channels".into(),
         sample_rate: 8000.0,

@@ -92,10 +92,6 @@ impl Drop for Session {
     }
 }
 
-fn scratch() -> PathBuf {
-    crate::common::temp_dir("tui-tmux")
-}
-
 /// A tmux session running `sh` with the prompt `prompt$ `, or None (with a notice) when
 /// tmux or the app is missing.
 fn start_session(name: &str) -> Option<Session> {
@@ -103,7 +99,7 @@ fn start_session(name: &str) -> Option<Session> {
         println!("NOTICE: tmux is not installed; the end-to-end terminal test is skipped");
         return None;
     };
-    let bin = env!("CARGO_BIN_EXE_tapmodes");
+    let bin = crate::common::bin_path();
     let wired = Command::new(bin)
         .args(["tui", "--help"])
         .output()
@@ -149,8 +145,8 @@ fn demo_runs_saves_and_restores_the_terminal() {
     let Some(s) = start_session("e2e") else {
         return;
     };
-    let bin = env!("CARGO_BIN_EXE_tapmodes");
-    let dir = scratch();
+    let bin = crate::common::bin_path();
+    let dir = crate::common::temp_dir("tui-tmux");
     let line = format!(
         "{bin} tui --demo --out '{}' --variant e2e-run; echo EXIT=$?",
         dir.display()
@@ -267,7 +263,7 @@ fn signals_end_the_app_cleanly() {
         .ok()
         .and_then(|s| s.parse().ok())
         .unwrap_or(1);
-    let bin = env!("CARGO_BIN_EXE_tapmodes");
+    let bin = crate::common::bin_path();
     for round in 0..rounds {
         for (k, (name, sig)) in [
             ("SIGTERM", Some(libc::SIGTERM)),

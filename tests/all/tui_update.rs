@@ -1,17 +1,14 @@
 //! Update logic without a terminal: key -> message -> state change, with the engine inline
 //! and the simulated bench fed synchronously.
 
+use crate::common::temp_dir;
 use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use tapmodes::hits::{TriggerLevel, Verdict};
 use tapmodes::run::RunFile;
 use tapmodes::spectra::{Basis, Estimator};
 use tapmodes::tui::model::{Action, Effect, Mode, Msg, action_for, scale_level, update};
 use tapmodes::tui::{App, Launch};
-
-fn scratch(name: &str) -> PathBuf {
-    crate::common::temp_dir(&format!("tui-upd-{name}"))
-}
 
 /// The demo arm with taps on the simulator's schedule (0.8 s, then every ~2.5 s).
 fn demo(seconds: f64, dir: &Path) -> App {
@@ -65,7 +62,7 @@ fn keys_map_to_actions() {
 
 #[test]
 fn reject_drops_the_selected_tap_and_accept_brings_it_back() {
-    let dir = scratch("reject");
+    let dir = temp_dir("tui-upd-reject");
     let mut app = demo(9.0, &dir);
     assert_eq!(app.model.counts(), (3, 3));
     assert_eq!(
@@ -93,7 +90,7 @@ fn reject_drops_the_selected_tap_and_accept_brings_it_back() {
 
 #[test]
 fn selecting_another_tap_and_dropping_it() {
-    let dir = scratch("select");
+    let dir = temp_dir("tui-upd-select");
     let mut app = demo(9.0, &dir);
     app.key(KeyCode::Up);
     app.key(KeyCode::Up);
@@ -116,7 +113,7 @@ fn selecting_another_tap_and_dropping_it() {
 
 #[test]
 fn estimator_toggle_switches_the_curve_between_h1_and_h2() {
-    let dir = scratch("estimator");
+    let dir = temp_dir("tui-upd-estimator");
     let mut app = demo(6.0, &dir);
     assert_eq!(app.model.estimator, Estimator::H1);
     let h1 = app.model.analysis.as_ref().unwrap().curve.clone().unwrap();
@@ -140,7 +137,7 @@ fn estimator_toggle_switches_the_curve_between_h1_and_h2() {
 
 #[test]
 fn zoom_pan_and_cursor_change_the_axis() {
-    let dir = scratch("zoom");
+    let dir = temp_dir("tui-upd-zoom");
     let mut app = demo(4.0, &dir);
     let band = app.model.header.band_hz;
     assert_eq!(app.model.view_hz, band);
@@ -196,7 +193,7 @@ fn zoom_pan_and_cursor_change_the_axis() {
 
 #[test]
 fn label_entry_renames_the_run_files() {
-    let dir = scratch("label");
+    let dir = temp_dir("tui-upd-label");
     let mut app = demo(4.0, &dir);
     assert!(
         dir.join("tm9-arm-solid.json").exists(),
@@ -230,7 +227,7 @@ fn label_entry_renames_the_run_files() {
 
 #[test]
 fn save_writes_wav_json_and_csv() {
-    let dir = scratch("save");
+    let dir = temp_dir("tui-upd-save");
     let mut app = demo(6.5, &dir);
     app.press('x');
     assert!(app.model.unsaved());
@@ -265,7 +262,7 @@ fn save_writes_wav_json_and_csv() {
 
 #[test]
 fn disarmed_taps_are_not_counted() {
-    let dir = scratch("arm");
+    let dir = temp_dir("tui-upd-arm");
     let mut app = demo_of(11.0, 2.0, &dir);
     assert_eq!(app.model.counts().1, 1);
     app.press('a');
@@ -283,7 +280,7 @@ fn disarmed_taps_are_not_counted() {
 
 #[test]
 fn trigger_level_keys_scale_the_threshold() {
-    let dir = scratch("level");
+    let dir = temp_dir("tui-upd-level");
     let mut app = demo(1.0, &dir);
     let th0 = app.model.live.as_ref().unwrap().threshold.unwrap();
     assert_eq!(app.model.level, TriggerLevel::NoiseMultiple(10.0));
@@ -306,7 +303,7 @@ fn trigger_level_keys_scale_the_threshold() {
 
 #[test]
 fn quit_asks_when_unsaved_and_can_save_first() {
-    let dir = scratch("quit");
+    let dir = temp_dir("tui-upd-quit");
     let mut app = demo(4.0, &dir);
     app.press('x');
     app.press('q');
@@ -324,7 +321,7 @@ fn quit_asks_when_unsaved_and_can_save_first() {
         "saved before quitting"
     );
     // Quitting without changes does not ask.
-    let dir = scratch("quit2");
+    let dir = temp_dir("tui-upd-quit2");
     let mut app = demo(1.0, &dir);
     app.press('q');
     assert!(app.model.quit);
@@ -332,7 +329,7 @@ fn quit_asks_when_unsaved_and_can_save_first() {
 
 #[test]
 fn space_fires_a_simulated_tap_and_auto_tap_repeats() {
-    let dir = scratch("tap");
+    let dir = temp_dir("tui-upd-tap");
     let mut app = quiet(30.0, &dir, None);
     app.pump_seconds(1.0);
     assert_eq!(app.model.counts().1, 0);
@@ -355,7 +352,7 @@ fn space_fires_a_simulated_tap_and_auto_tap_repeats() {
     assert_eq!(app.model.counts().1, n, "no more taps once off");
 
     // Given at launch, auto-tap is on from the start.
-    let dir = scratch("tap2");
+    let dir = temp_dir("tui-upd-tap2");
     let mut app = quiet(10.0, &dir, Some(2.5));
     assert!(app.model.auto_tap_on);
     app.pump_seconds(9.0);
@@ -364,7 +361,7 @@ fn space_fires_a_simulated_tap_and_auto_tap_repeats() {
 
 #[test]
 fn new_run_starts_fresh_files() {
-    let dir = scratch("newrun");
+    let dir = temp_dir("tui-upd-newrun");
     let mut app = demo(9.0, &dir);
     app.press('n');
     assert_eq!(app.model.counts(), (0, 0));
@@ -377,7 +374,7 @@ fn new_run_starts_fresh_files() {
 
 #[test]
 fn update_is_a_function_of_the_model() {
-    let dir = scratch("pure");
+    let dir = temp_dir("tui-upd-pure");
     let app = demo(4.0, &dir);
     let mut m = app.model.clone();
     let fx = update(&mut m, Msg::Action(Action::Reject));
@@ -407,7 +404,7 @@ fn update_is_a_function_of_the_model() {
 /// its header over all its data.
 #[test]
 fn stop_from_outside_saves_everything_taken() {
-    let dir = scratch("stop");
+    let dir = temp_dir("tui-upd-stop");
     let mut app = demo_of(10.0, 5.0, &dir);
     assert_eq!(app.model.counts().1, 2);
     app.press('x'); // an unsaved verdict
@@ -429,7 +426,7 @@ fn stop_from_outside_saves_everything_taken() {
     );
     // Without taps there is nothing to save: no run file, and the recording is not left
     // behind without one (as after a quit with no tap).
-    let dir = scratch("stop0");
+    let dir = temp_dir("tui-upd-stop0");
     let mut app = quiet(1.0, &dir, None);
     app.pump_seconds(0.5);
     app.stop_saving();
@@ -442,7 +439,7 @@ fn stop_from_outside_saves_everything_taken() {
 /// "there is no tap" (the tap is on the board).
 #[test]
 fn keeping_a_tap_without_a_record_says_why() {
-    let dir = scratch("too-soon");
+    let dir = temp_dir("tui-upd-too-soon");
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/independent/tm9-frame-48k-s1.wav");
     let source = tapmodes::source::wav::WavSource::open(&path).unwrap();
     let roles = tapmodes::signal::RoleChoice::default()

@@ -1,8 +1,8 @@
 //! The app's screens rendered into a test backend at 80x24 and 160x48, fed synchronously
 //! from the simulated bench: what the operator must see is on screen.
 
+use crate::common::temp_dir;
 use ratatui::crossterm::event::KeyCode;
-use std::path::PathBuf;
 use tapmodes::hits::Verdict;
 use tapmodes::pipeline::AnalysisConfig;
 use tapmodes::signal::RoleChoice;
@@ -13,10 +13,6 @@ use tapmodes::tui::view::fmt_hz;
 use tapmodes::tui::{App, Launch};
 
 const SIZES: [(u16, u16); 2] = [(80, 24), (160, 48)];
-
-fn scratch(name: &str) -> PathBuf {
-    crate::common::temp_dir(&format!("tui-view-{name}"))
-}
 
 fn demo(preset_name: &str, seconds: f64, dir: &std::path::Path) -> App {
     crate::common::demo_app(preset_name, seconds, seconds, dir)
@@ -43,7 +39,7 @@ fn from_plan(plan: BenchPlan, seconds: f64, dir: &std::path::Path, label: &str) 
 
 #[test]
 fn main_screen_shows_signal_last_tap_curve_taps_modes_and_status() {
-    let dir = scratch("main");
+    let dir = temp_dir("tui-view-main");
     let app = demo("tm9-arm-solid", 9.0, &dir);
     let a = app
         .model
@@ -97,7 +93,7 @@ fn main_screen_shows_signal_last_tap_curve_taps_modes_and_status() {
 
 #[test]
 fn a_rejected_tap_shows_its_verdict_and_reason() {
-    let dir = scratch("double");
+    let dir = temp_dir("tui-view-double");
     let mut plan = preset("tm9-arm-solid", 2).unwrap();
     plan.hammer.double_hit_chance = 1.0;
     let app = from_plan(plan, 4.0, &dir, "bouncy");
@@ -118,7 +114,7 @@ fn a_rejected_tap_shows_its_verdict_and_reason() {
 
 #[test]
 fn before_any_tap_the_panels_say_what_to_do() {
-    let dir = scratch("empty");
+    let dir = temp_dir("tui-view-empty");
     let launch = Launch::simulated("tm9-arm-solid", 1, Some(0.5), false, false, dir).unwrap();
     let mut app = App::headless(launch).unwrap();
     app.pump_seconds(0.5);
@@ -133,7 +129,7 @@ fn before_any_tap_the_panels_say_what_to_do() {
 
 #[test]
 fn help_overlay_lists_every_key_and_the_safety_cautions() {
-    let dir = scratch("help");
+    let dir = temp_dir("tui-view-help");
     let mut app = demo("tm9-arm-solid", 1.0, &dir);
     app.press('?');
     for (w, h) in SIZES {
@@ -166,7 +162,7 @@ fn help_overlay_lists_every_key_and_the_safety_cautions() {
 
 #[test]
 fn views_switch_between_the_available_curves() {
-    let dir = scratch("views");
+    let dir = temp_dir("tui-view-views");
     let mut app = demo("tm9-stack-soft", 4.0, &dir);
     assert!(app.screen(80, 24).contains("FRF H1"));
     app.press('v');
@@ -184,7 +180,7 @@ fn views_switch_between_the_available_curves() {
     app.press('v');
     assert!(app.screen(160, 48).contains("FRF H1"));
     // Without a base channel there is no transmissibility to switch to.
-    let dir = scratch("views-arm");
+    let dir = temp_dir("tui-view-views-arm");
     let mut arm = demo("tm9-arm-solid", 4.0, &dir);
     arm.press('v');
     arm.press('v');
@@ -195,7 +191,7 @@ fn views_switch_between_the_available_curves() {
 
 #[test]
 fn saved_runs_overlay_and_compare_against_the_current_run() {
-    let dir = scratch("compare");
+    let dir = temp_dir("tui-view-compare");
     {
         let mut base = demo("tm9-arm-solid", 9.0, &dir);
         base.press('s');
@@ -244,7 +240,7 @@ fn saved_runs_overlay_and_compare_against_the_current_run() {
 
 #[test]
 fn picker_lists_the_runs_in_the_output_folder() {
-    let dir = scratch("picker");
+    let dir = temp_dir("tui-view-picker");
     {
         let mut base = demo("tm9-arm-braced", 5.0, &dir);
         base.press('s');
@@ -271,7 +267,7 @@ fn picker_lists_the_runs_in_the_output_folder() {
 
 #[test]
 fn entry_and_confirm_popups_render() {
-    let dir = scratch("popups");
+    let dir = temp_dir("tui-view-popups");
     let mut app = demo("tm9-arm-solid", 4.0, &dir);
     app.press('l');
     for c in "-B".chars() {
@@ -295,7 +291,7 @@ fn entry_and_confirm_popups_render() {
 
 #[test]
 fn a_too_small_terminal_says_so() {
-    let dir = scratch("small");
+    let dir = temp_dir("tui-view-small");
     let app = demo("tm9-arm-solid", 1.0, &dir);
     let s = app.screen(50, 12);
     assert!(s.contains("needs at least 60x16"), "{s}");
