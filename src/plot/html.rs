@@ -147,6 +147,10 @@ fn run_section(file: &str, run: &RunFile) -> String {
             d.rpm.0,
             d.rpm.1
         );
+        let sagged = crate::drive::report::sagged_line(d);
+        if !sagged.trim().is_empty() {
+            s += &format!("<p class=\"small\">{}</p>\n", esc(sagged.trim()));
+        }
     }
     if let Some(m) = &run.mount {
         s += &format!(

@@ -671,6 +671,12 @@ fn a_given_drive_reaches_every_run_and_roles_come_from_the_setup() {
         .filter(|n| n.has_tag_name("h3") && n.text() == Some("Excitation bands"))
         .count();
     assert_eq!(h3, 2, "every run section has the bands");
+    // 1300 x 6 x 3.5 / 60 = 455.0 Hz at full throttle, x 0.35 = 159.25 Hz.
+    assert_eq!(
+        text.matches("at 3.5 V/cell under load: rotation 159.2-455.0 Hz")
+            .count(),
+        2
+    );
     // Each mode's verdict, through the library's own function.
     let drive = tapmodes::drive::file::load(&drive_file).unwrap();
     let tds: Vec<String> = doc
