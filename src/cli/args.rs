@@ -129,6 +129,8 @@ pub enum BandForm {
     Open,
     /// `HZ` (a single frequency) or `LO:HI`, both sides given and above 0.
     FrequencyOrBand,
+    /// `LO:HI` only, both sides given and above 0 (a range to show).
+    Closed,
 }
 
 /// The one parser of frequency bands on the command line; `(f, f)` for a single frequency.
@@ -152,7 +154,7 @@ pub fn parse_band_as(s: &str, form: BandForm) -> std::result::Result<(f64, f64),
             }
             Ok((lo, hi))
         }
-        None if open => Err(format!(
+        None if form != BandForm::FrequencyOrBand => Err(format!(
             "'{s}' is not a band; write LO:HI in Hz, e.g. 50:1500"
         )),
         None => num(s, 0.0).map(|f| (f, f)),
@@ -162,6 +164,11 @@ pub fn parse_band_as(s: &str, form: BandForm) -> std::result::Result<(f64, f64),
 /// `--band LO:HI` (either side may be empty).
 pub fn parse_band(s: &str) -> std::result::Result<(f64, f64), String> {
     parse_band_as(s, BandForm::Open)
+}
+
+/// `LO:HI`, both given (the pictures' `--freq-range`).
+pub fn parse_closed_band(s: &str) -> std::result::Result<(f64, f64), String> {
+    parse_band_as(s, BandForm::Closed)
 }
 
 /// `HZ` or `LO:HI` (the isolation options).
@@ -526,5 +533,13 @@ mod tests {
         assert!(parse_freq_or_band(":200").is_err(), "both sides needed");
         assert!(parse_freq_or_band("0").is_err(), "a frequency is above 0");
         assert!(parse_freq_or_band("nan").is_err());
+        assert_eq!(parse_closed_band("20:1500"), Ok((20.0, 1500.0)));
+        assert!(parse_closed_band("20:").is_err(), "both sides needed");
+        assert!(parse_closed_band("0:100").is_err(), "LO above 0");
+        assert!(
+            parse_closed_band("1500").is_err(),
+            "a range, not a frequency"
+        );
+        assert!(parse_closed_band("600:500").is_err());
     }
 }

@@ -10,12 +10,17 @@ use std::path::PathBuf;
 #[derive(Debug, Clone, Default, Args)]
 #[command(next_help_heading = "Modes")]
 pub struct DriveArgs {
-    /// Drive file (`key = value` lines: motor_kv, cells, cell_volts, throttle, blades,
-    /// near_pct, or rpm instead of the first four; see the README).
-    #[arg(long, value_name = "FILE", conflicts_with_all = ["motor_kv", "cells", "cell_volts", "throttle", "rpm", "blades"])]
+    /// Drive file (`key = value` lines: motor_kv, cells, cell_volts or volts, throttle,
+    /// blades, near_pct, or rpm instead of the first four; see the README).
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["motor_kv", "cells", "cell_volts", "volts", "throttle", "rpm", "blades"])]
     pub drive: Option<PathBuf>,
-    /// Motor velocity constant, rpm per volt (with --cells and --throttle).
-    #[arg(long, value_name = "RPM_PER_V", requires_all = ["cells", "throttle"], conflicts_with = "rpm")]
+    /// Motor velocity constant, rpm per volt (with --cells or --volts, and --throttle).
+    #[arg(
+        long,
+        value_name = "RPM_PER_V",
+        requires = "throttle",
+        conflicts_with = "rpm"
+    )]
     pub motor_kv: Option<f64>,
     /// Lithium cells in series (with --motor-kv).
     #[arg(long, value_name = "N", requires = "motor_kv")]
@@ -23,6 +28,9 @@ pub struct DriveArgs {
     /// Volts per cell [default: 3.7 nominal; 3.5 for a sagged pack].
     #[arg(long, value_name = "V", requires = "motor_kv")]
     pub cell_volts: Option<f64>,
+    /// Pack voltage, V, instead of --cells and --cell-volts (with --motor-kv).
+    #[arg(long, value_name = "V", requires = "motor_kv", conflicts_with_all = ["cells", "cell_volts"])]
+    pub volts: Option<f64>,
     /// Throttle range in percent, hover to full, e.g. 35:100 (with --motor-kv).
     #[arg(long, value_name = "LO:HI", value_parser = parse_pair, requires = "motor_kv")]
     pub throttle: Option<(f64, f64)>,
@@ -46,13 +54,22 @@ impl DriveArgs {
             let Some(blades) = self.blades else {
                 crate::fail!("give --blades (blades per propeller) with the drive");
             };
-            match (self.motor_kv, self.cells, self.throttle, self.rpm) {
-                (Some(kv), Some(c), Some(t), None) => {
+            match (
+                self.motor_kv,
+                self.cells,
+                self.volts,
+                self.throttle,
+                self.rpm,
+            ) {
+                (Some(kv), Some(c), None, Some(t), None) => {
                     Drive::nameplate(kv, c, self.cell_volts, t, blades)?
                 }
-                (None, _, _, Some(r)) => Drive::from_rpm(r, blades)?,
+                (Some(kv), None, Some(v), Some(t), None) => {
+                    Drive::nameplate_volts(kv, v, t, blades)?
+                }
+                (None, _, _, _, Some(r)) => Drive::from_rpm(r, blades)?,
                 _ => crate::fail!(
-                    "give the drive as --motor-kv, --cells and --throttle, or as --rpm, with --blades"
+                    "give the drive as --motor-kv, --cells (or --volts) and --throttle, or as --rpm, with --blades"
                 ),
             }
         } else if self.near_pct.is_some() {

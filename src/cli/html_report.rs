@@ -4,7 +4,7 @@
 use super::plot::{LookArgs, check_picture_out, load, nothing_drawn};
 use crate::error::Result;
 use crate::plot::html::{ReportInput, report_html};
-use crate::run::compare::render::{render_csv, render_table};
+use crate::run::compare::render::render_table;
 use crate::run::compare::{CompareOptions, compare_with};
 use clap::Args;
 use std::path::PathBuf;
@@ -50,7 +50,7 @@ pub fn run(a: &ReportArgs) -> Result<()> {
         return Err(e);
     }
     let mut warnings = loaded.figure.notes.clone();
-    let (comparison, csv) = if loaded.runs.len() >= 2 {
+    let (comparison, text) = if loaded.runs.len() >= 2 {
         let o = CompareOptions {
             drive,
             ..CompareOptions::default()
@@ -61,9 +61,8 @@ pub fn run(a: &ReportArgs) -> Result<()> {
                 warnings.push(format!("{} against {}: {w}", v.label, c.baseline));
             }
         }
-        let csv = render_csv(&c)?;
         let text = render_table(&c);
-        (Some(c), Some((csv, text)))
+        (Some(c), Some(text))
     } else {
         warnings.push("one run: no comparison (give two runs or more)".into());
         (None, None)
@@ -90,8 +89,7 @@ pub fn run(a: &ReportArgs) -> Result<()> {
         runs: &loaded.runs,
         svg: &rendered.svg,
         comparison: comparison.as_ref(),
-        comparison_csv: csv.as_ref().map(|c| c.0.as_str()),
-        comparison_text: csv.as_ref().map(|c| c.1.as_str()),
+        comparison_text: text.as_deref(),
         warnings: &warnings,
         created_utc: &created,
         safety: super::SAFETY,

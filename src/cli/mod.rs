@@ -39,10 +39,12 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 pub(crate) enum Command {
     /// The terminal app (the default): live bench view on any source.
+    #[command(after_help = SAFETY)]
     Tui(Box<tui::TuiArgs>),
     /// Make a recording on the simulated bench (WAV plus the true modes as JSON).
     Simulate(simulate::SimulateArgs),
     /// Find hits and modes in a WAV (or re-analyse a run file) and write the mode list.
+    #[command(after_help = SAFETY)]
     Analyze(Box<analyze::AnalyzeArgs>),
     /// Compare the mode lists of variants against the first one.
     Compare(compare::CompareArgs),
@@ -53,6 +55,7 @@ pub(crate) enum Command {
     /// Change a run file's label, note or mass (grams) after the fact.
     Amend(amend::AmendArgs),
     /// Capture hits live (serial, sound card, replay or the simulated bench) without the app.
+    #[command(after_help = SAFETY)]
     Capture(Box<capture::CaptureArgs>),
     /// List serial ports.
     Ports,

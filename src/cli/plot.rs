@@ -39,7 +39,7 @@ pub struct LookArgs {
     #[arg(long)]
     pub log_freq: bool,
     /// Frequency range to show, LO:HI in Hz [default: the curves' range].
-    #[arg(long, value_name = "LO:HI", value_parser = parse_range)]
+    #[arg(long, value_name = "LO:HI", value_parser = super::args::parse_closed_band)]
     pub freq_range: Option<(f64, f64)>,
     /// Picture width in pixels (400 to 4000).
     #[arg(long, default_value_t = 1000, value_parser = clap::value_parser!(u32).range(400..=4000))]
@@ -65,24 +65,6 @@ impl LookArgs {
     }
 }
 
-fn parse_range(s: &str) -> std::result::Result<(f64, f64), String> {
-    let (a, b) = s
-        .split_once(':')
-        .ok_or_else(|| format!("'{s}' is not a range; write LO:HI in Hz"))?;
-    let num = |t: &str| {
-        t.trim()
-            .parse::<f64>()
-            .ok()
-            .filter(|v| v.is_finite() && *v > 0.0)
-            .ok_or_else(|| format!("'{t}' is not a frequency in Hz above 0"))
-    };
-    let (lo, hi) = (num(a)?, num(b)?);
-    if lo >= hi {
-        return Err(format!("the range {s} is empty (LO must be below HI)"));
-    }
-    Ok((lo, hi))
-}
-
 /// Runs loaded with the files they reference (for the overwrite checks).
 pub struct Loaded {
     pub runs: Vec<(String, RunFile)>,
@@ -93,7 +75,8 @@ pub struct Loaded {
 /// Load the runs and make their figure. A run without a curve table, or whose table cannot
 /// be read, is named in the figure's notes (and on stderr) and drawn by its mode list alone
 /// in the tables; a soft mount's measured transmissibility comes from re-analysing its
-/// recording unless `fit_only`.
+/// recording unless `fit_only`. With a drive, every run is judged against it
+/// (`drive::rejudge`): its modes' verdicts and its drive section are the given drive's.
 pub fn load(
     paths: &[PathBuf],
     fit_only: bool,
@@ -103,7 +86,12 @@ pub fn load(
     let mut inputs: Vec<PathBuf> = Vec::new();
     let mut fig = Figure::default();
     for p in paths {
-        let run = RunFile::load(p)?;
+        let mut run = RunFile::load(p)?;
+        if let Some(d) = &drive
+            && let Some(n) = crate::drive::rejudge(&mut run, d)
+        {
+            fig.notes.push(n);
+        }
         let shown = p.display().to_string();
         inputs.push(p.clone());
         let label = run.variant.label.clone();
@@ -219,7 +207,18 @@ pub fn run(a: &PlotArgs) -> Result<()> {
         let refs: Vec<&Path> = loaded.inputs.iter().map(|p| p.as_path()).collect();
         safe_path::check_output(m, FileKind::Csv, &refs)?;
     }
-    let r = crate::plot::write_picture(&loaded.figure, &a.look.options(), &a.out)?;
+    // Everything is made and every folder checked before anything is written: a failure
+    // leaves no half of the outputs behind.
+    let modes_text = match &a.modes_csv {
+        Some(_) => Some(crate::run::modes_csv::modes_csv(&loaded.runs)?),
+        None => None,
+    };
+    let (r, bytes) = crate::plot::picture_bytes(&loaded.figure, &a.look.options(), kind)?;
+    check_folder(&a.out)?;
+    if let Some(m) = &a.modes_csv {
+        check_folder(m)?;
+    }
+    crate::run::atomic::write_atomic(&a.out, &bytes)?;
     println!(
         "wrote {} ({}x{} px, {} trace{}, {} mount{}, {} band{})",
         a.out.display(),
@@ -244,10 +243,25 @@ pub fn run(a: &PlotArgs) -> Result<()> {
             "s"
         },
     );
-    if let Some(m) = &a.modes_csv {
-        let text = crate::run::modes_csv::modes_csv(&loaded.runs)?;
+    if let (Some(m), Some(text)) = (&a.modes_csv, &modes_text) {
         crate::run::atomic::write_atomic(m, text.as_bytes())?;
         println!("wrote {}", m.display());
+    }
+    Ok(())
+}
+
+/// The folder an output goes into must exist (checked before any output is written).
+pub fn check_folder(out: &Path) -> Result<()> {
+    let dir = match out.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d,
+        _ => Path::new("."),
+    };
+    if !dir.is_dir() {
+        crate::fail!(
+            "cannot write '{}': the folder '{}' does not exist",
+            out.display(),
+            dir.display()
+        );
     }
     Ok(())
 }

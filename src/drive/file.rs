@@ -10,7 +10,8 @@
 //! near_pct   = 10        # optional; margin of a "near" verdict, percent
 //! ```
 //!
-//! or, instead of `motor_kv`, `cells`, `cell_volts` and `throttle`: `rpm = 10000:28000`.
+//! `volts = 22.2` (the pack voltage) may stand instead of `cells` and `cell_volts`; or,
+//! instead of `motor_kv`, `cells`, `cell_volts` and `throttle`: `rpm = 10000:28000`.
 //! One key per line, `#` starts a comment, blank lines are ignored, keys are lower case.
 //! An unknown or repeated key, a missing value or a number out of range is an error naming
 //! the file and line. Files above [`MAX_DRIVE_FILE_BYTES`] are refused.
@@ -23,10 +24,11 @@ use std::path::Path;
 pub const MAX_DRIVE_FILE_BYTES: u64 = 64 * 1024;
 
 /// The keys a drive file may hold.
-pub const KEYS: [&str; 7] = [
+pub const KEYS: [&str; 8] = [
     "motor_kv",
     "cells",
     "cell_volts",
+    "volts",
     "throttle",
     "rpm",
     "blades",
@@ -78,6 +80,7 @@ pub fn parse(text: &str, name: &str) -> Result<Drive> {
         motor_kv: None,
         cells: None,
         cell_volts: None,
+        pack_volts: None,
         throttle_pct: None,
         rpm: None,
         blades: 0,
@@ -127,6 +130,7 @@ pub fn parse(text: &str, name: &str) -> Result<Drive> {
             "motor_kv" => d.motor_kv = Some(number()?),
             "cells" => d.cells = Some(count()?),
             "cell_volts" => d.cell_volts = Some(number()?),
+            "volts" => d.pack_volts = Some(number()?),
             "throttle" => d.throttle_pct = Some(pair()?),
             "rpm" => d.rpm = Some(pair()?),
             "blades" => blades = Some(count()?),
@@ -161,6 +165,18 @@ mod tests {
     }
 
     #[test]
+    fn reads_a_pack_voltage() {
+        let d = parse(
+            "motor_kv = 1300\nvolts = 22.2\nthrottle = 35:100\nblades = 3\n",
+            "t.drive",
+        )
+        .unwrap();
+        assert_eq!((d.cells, d.pack_volts), (None, Some(22.2)));
+        // 1300 x 22.2 x 1.00 = 28 860 rpm.
+        assert!((d.rpm_range().1 - 28_860.0).abs() < 1e-9);
+    }
+
+    #[test]
     fn bad_files_are_one_sentence_each() {
         let cases = [
             (
@@ -181,6 +197,22 @@ mod tests {
             ("rpm = 9000:30000\nmotor_kv = 1300\nblades = 2", "not both"),
             ("motor_kv = fast\nblades = 2", "not a number"),
             ("just words", "not a 'key = value' line"),
+            (
+                "motor_kv = 1300\ncells = 6\nvolts = 22.2\nthrottle = 35:100\nblades = 3",
+                "not both",
+            ),
+            (
+                "motor_kv = 1300\nvolts = 22.2\ncell_volts = 3.7\nthrottle = 35:100\nblades = 3",
+                "volts per cell go with cells",
+            ),
+            (
+                "motor_kv = 1300\nvolts = 500\nthrottle = 35:100\nblades = 3",
+                "pack voltage must be",
+            ),
+            (
+                "motor_kv = 1300\ncells = 6\nthrottle = 0.35:1\nblades = 3",
+                "did you mean 35:100?",
+            ),
         ];
         for (text, want) in cases {
             let e = parse(text, "x.drive").unwrap_err().to_string();

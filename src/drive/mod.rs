@@ -4,14 +4,16 @@
 //! Everything here is an estimate from nameplate values, not a measurement: no motor is run.
 //!
 //! - Motor rotation: `f = KV x V x throttle / 60` Hz, with `KV` in rpm per volt, `V` the
-//!   pack voltage (cells x volts per cell) and the throttle as a fraction (common practice,
+//!   pack voltage (cells x volts per cell, or the pack voltage given directly) and the
+//!   throttle as a fraction (common practice,
 //!   no source). It treats rpm as proportional to throttle and ignores the load of the
 //!   propeller, which holds a loaded motor below `KV x V`: the real band tends to sit lower
 //!   than this estimate (common practice, no source).
 //! - Volts per cell: [`NOMINAL_CELL_VOLTS`] = 3.7 V, the nominal voltage of a lithium-polymer
 //!   cell (common practice, no source). Under load a pack sags; [`SAGGED_CELL_VOLTS`] = 3.5 V
 //!   is a typical loaded value late in a flight (from memory). The default is the nominal
-//!   value; `--cell-volts 3.5` gives the sagged bands (5.4 % lower).
+//!   value; `--cell-volts 3.5` gives the sagged bands (5.4 % lower), and the rotation band
+//!   at the sagged voltage is shown beside the bands ([`Drive::sagged_rotation_hz`]).
 //! - Harmonics of rotation at 2x and 3x (imbalance, motor and propeller asymmetry), and blade
 //!   pass at `blades x rotation` (common practice, no source).
 //! - A mode is `inside` a band when its frequency lies within the band's edges, `near` when
@@ -19,6 +21,10 @@
 //!   else `clear`. 10 % covers the sag from nominal to loaded voltage (5.4 %) plus a few
 //!   percent of motor-constant tolerance (common practice, no source); change it with
 //!   `--near-pct`.
+//! - The margin is a percentage of a band edge. Outside a band it is the distance to the
+//!   nearer edge over that edge. Inside it is the depth `min((f - lo) / lo, (hi - f) / hi)`:
+//!   the edge is chosen by the same percentage that is reported, so the depth grows
+//!   steadily from either edge and the two sides meet without a jump.
 //!
 //! The verdict is guidance for where to look, not a substitute for a careful first hover.
 
@@ -45,8 +51,21 @@ pub const MAX_CELLS: u32 = 24;
 pub const MAX_BLADES: u32 = 12;
 /// Highest motor constant accepted, rpm per volt.
 pub const MAX_KV: f64 = 100_000.0;
-/// Highest rotation speed accepted, rpm.
-pub const MAX_RPM: f64 = 1_000_000.0;
+/// Highest rotation speed accepted, rpm: far above any propeller-driving motor (common
+/// practice, no source).
+pub const MAX_RPM: f64 = 100_000.0;
+/// Highest pack voltage accepted, V: [`MAX_CELLS`] x [`MAX_CELL_VOLTS`].
+pub const MAX_PACK_VOLTS: f64 = MAX_CELLS as f64 * MAX_CELL_VOLTS;
+
+/// A number for a message: plain when of a sensible size, else in exponent form (so an
+/// absurd input does not print hundreds of digits).
+pub fn fmt_num(v: f64) -> String {
+    if v.is_finite() && (v == 0.0 || (1e-4..1e7).contains(&v.abs())) {
+        format!("{v}")
+    } else {
+        format!("{v:e}")
+    }
+}
 
 /// The plain statement stored with every drive section and printed with the bands.
 pub const ESTIMATE_NOTE: &str = "bands are estimates from nameplate values (f = KV x V x throttle / 60, \
@@ -68,6 +87,9 @@ pub struct Drive {
     /// Volts per cell used for the pack voltage (default [`NOMINAL_CELL_VOLTS`]).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub cell_volts: Option<f64>,
+    /// Pack voltage given directly, V, instead of cells and volts per cell.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pack_volts: Option<f64>,
     /// Throttle range in percent, hover to full: `[lo, hi]`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub throttle_pct: Option<(f64, f64)>,
@@ -123,7 +145,9 @@ pub struct BandVerdict {
     /// The nearest band: the one the mode sits deepest in, else the one with the nearest edge.
     pub name: String,
     /// Signed distance to the nearest edge of that band, percent of the edge frequency:
-    /// positive outside (room to spare), negative inside (how deep in).
+    /// positive outside (room to spare), negative inside (how deep in). Inside, the depth is
+    /// `min((f - lo) / lo, (hi - f) / hi)`: the edge is the nearer one in percent, not in Hz,
+    /// so the depth does not jump as a mode crosses the band's middle.
     pub margin_pct: f64,
     /// Every band the mode lies in (bands may overlap: blade pass of a two-blade propeller
     /// is the 2x harmonic).
@@ -139,6 +163,11 @@ pub struct DriveSection {
     pub rpm: (f64, f64),
     pub near_pct: f64,
     pub bands: Vec<Band>,
+    /// The rotation band at [`SAGGED_CELL_VOLTS`] per cell (a pack under load), Hz; absent
+    /// when the speed is an rpm range or the pack voltage was given without cells, or when
+    /// the volts per cell are already at or below the sagged value.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sagged_rotation_hz: Option<(f64, f64)>,
     /// What the numbers are: estimates from nameplate values.
     pub basis: String,
     /// Soft-mounted parts: transmissibility over the rotation band and at blade pass.
@@ -151,8 +180,8 @@ fn check_range(v: (f64, f64), lo_min: f64, hi_max: f64, what: &str, unit: &str) 
     if !ok {
         crate::fail!(
             "{what} {}:{} is not a range above {lo_min} and up to {hi_max} {unit} with LO at most HI",
-            v.0,
-            v.1
+            fmt_num(v.0),
+            fmt_num(v.1)
         );
     }
     Ok(())
@@ -171,6 +200,28 @@ impl Drive {
             motor_kv: Some(motor_kv),
             cells: Some(cells),
             cell_volts,
+            pack_volts: None,
+            throttle_pct: Some(throttle_pct),
+            rpm: None,
+            blades,
+            near_pct: DEFAULT_NEAR_PCT,
+        };
+        d.check()?;
+        Ok(d)
+    }
+
+    /// A drive from nameplate values with the pack voltage given directly, V.
+    pub fn nameplate_volts(
+        motor_kv: f64,
+        pack_volts: f64,
+        throttle_pct: (f64, f64),
+        blades: u32,
+    ) -> Result<Drive> {
+        let d = Drive {
+            motor_kv: Some(motor_kv),
+            cells: None,
+            cell_volts: None,
+            pack_volts: Some(pack_volts),
             throttle_pct: Some(throttle_pct),
             rpm: None,
             blades,
@@ -186,6 +237,7 @@ impl Drive {
             motor_kv: None,
             cells: None,
             cell_volts: None,
+            pack_volts: None,
             throttle_pct: None,
             rpm: Some(rpm),
             blades,
@@ -207,12 +259,13 @@ impl Drive {
         if !(self.near_pct.is_finite() && self.near_pct >= 0.0 && self.near_pct <= 100.0) {
             crate::fail!(
                 "the near margin must be from 0 to 100 %, not {}",
-                self.near_pct
+                fmt_num(self.near_pct)
             );
         }
         let nameplate = self.motor_kv.is_some()
             || self.cells.is_some()
             || self.cell_volts.is_some()
+            || self.pack_volts.is_some()
             || self.throttle_pct.is_some();
         match (self.rpm, nameplate) {
             (Some(_), true) => crate::fail!(
@@ -220,7 +273,9 @@ impl Drive {
             ),
             (Some(r), false) => check_range(r, 0.0, MAX_RPM, "the rpm range", "rpm"),
             (None, false) => {
-                crate::fail!("the drive needs either an rpm range or motor KV, cells and throttle")
+                crate::fail!(
+                    "the drive needs either an rpm range or motor KV, cells (or pack volts) and throttle"
+                )
             }
             (None, true) => {
                 let Some(kv) = self.motor_kv else {
@@ -230,20 +285,42 @@ impl Drive {
                 };
                 if !(kv.is_finite() && kv > 0.0 && kv <= MAX_KV) {
                     crate::fail!(
-                        "the motor KV must be above 0 and at most {MAX_KV} rpm per volt, not {kv}"
+                        "the motor KV must be above 0 and at most {MAX_KV} rpm per volt, not {}",
+                        fmt_num(kv)
                     );
                 }
-                let Some(cells) = self.cells else {
-                    crate::fail!("the drive needs the number of cells with the motor KV");
-                };
-                if cells == 0 || cells > MAX_CELLS {
-                    crate::fail!("cells must be from 1 to {MAX_CELLS}, not {cells}");
-                }
-                let v = self.volts_per_cell();
-                if !(v.is_finite() && v > 0.0 && v <= MAX_CELL_VOLTS) {
-                    crate::fail!(
-                        "volts per cell must be above 0 and at most {MAX_CELL_VOLTS} V, not {v}"
-                    );
+                match (self.cells, self.pack_volts) {
+                    (Some(_), Some(_)) => crate::fail!(
+                        "give the pack voltage either as cells (with volts per cell) or as pack volts, not both"
+                    ),
+                    (None, Some(v)) => {
+                        if self.cell_volts.is_some() {
+                            crate::fail!(
+                                "volts per cell go with cells, not with the pack voltage; give one or the other"
+                            );
+                        }
+                        if !(v.is_finite() && v > 0.0 && v <= MAX_PACK_VOLTS) {
+                            crate::fail!(
+                                "the pack voltage must be above 0 and at most {MAX_PACK_VOLTS} V, not {}",
+                                fmt_num(v)
+                            );
+                        }
+                    }
+                    (None, None) => crate::fail!(
+                        "the drive needs the number of cells or the pack voltage with the motor KV"
+                    ),
+                    (Some(cells), None) => {
+                        if cells == 0 || cells > MAX_CELLS {
+                            crate::fail!("cells must be from 1 to {MAX_CELLS}, not {cells}");
+                        }
+                        let v = self.volts_per_cell();
+                        if !(v.is_finite() && v > 0.0 && v <= MAX_CELL_VOLTS) {
+                            crate::fail!(
+                                "volts per cell must be above 0 and at most {MAX_CELL_VOLTS} V, not {}",
+                                fmt_num(v)
+                            );
+                        }
+                    }
                 }
                 let Some(t) = self.throttle_pct else {
                     crate::fail!(
@@ -255,8 +332,17 @@ impl Drive {
                 if !ok {
                     crate::fail!(
                         "the throttle range {}:{} must lie within 0-100 % (LO above 0, LO at most HI)",
-                        t.0,
-                        t.1
+                        fmt_num(t.0),
+                        fmt_num(t.1)
+                    );
+                }
+                if t.1 <= 1.0 {
+                    crate::fail!(
+                        "the throttle {}:{} is at most 1 %: throttle is in percent; did you mean {}:{}?",
+                        fmt_num(t.0),
+                        fmt_num(t.1),
+                        fmt_num(t.0 * 100.0),
+                        fmt_num(t.1 * 100.0)
                     );
                 }
                 Ok(())
@@ -269,9 +355,22 @@ impl Drive {
         self.cell_volts.unwrap_or(NOMINAL_CELL_VOLTS)
     }
 
-    /// Pack voltage, V (nameplate drives only).
+    /// Pack voltage, V (nameplate drives only): given directly, or cells x volts per cell.
     pub fn pack_volts(&self) -> Option<f64> {
-        self.cells.map(|c| f64::from(c) * self.volts_per_cell())
+        self.pack_volts
+            .or_else(|| self.cells.map(|c| f64::from(c) * self.volts_per_cell()))
+    }
+
+    /// The rotation band at [`SAGGED_CELL_VOLTS`] per cell, Hz: `KV x cells x 3.5 x
+    /// throttle / 60`. `None` for an rpm range, a pack voltage given without cells, or volts
+    /// per cell already at or below the sagged value.
+    pub fn sagged_rotation_hz(&self) -> Option<(f64, f64)> {
+        let (kv, cells, t) = (self.motor_kv?, self.cells?, self.throttle_pct?);
+        if self.rpm.is_some() || self.volts_per_cell() <= SAGGED_CELL_VOLTS {
+            return None;
+        }
+        let n = kv * f64::from(cells) * SAGGED_CELL_VOLTS / 60.0;
+        Some((n * t.0 / 100.0, n * t.1 / 100.0))
     }
 
     /// Rotation speed range in rpm: given, or `KV x V x throttle`.
@@ -314,10 +413,21 @@ impl Drive {
         }
     }
 
-    /// One line describing the drive, e.g. "1300 rpm/V, 6 cells x 3.7 V = 22.2 V, throttle
-    /// 35-100 %, 3 blades".
+    /// One line describing the drive, e.g. "KV 1300, 6 x 3.7 V = 22.2 V, throttle 35-100 %
+    /// -> 10101-28860 rpm, 3 blades".
     pub fn describe(&self) -> String {
         let (lo, hi) = self.rpm_range();
+        if let (Some(kv), None, Some(v), Some(t)) = (
+            self.motor_kv,
+            self.cells,
+            self.pack_volts,
+            self.throttle_pct,
+        ) {
+            return format!(
+                "KV {kv}, pack {v} V, throttle {}-{} % -> {lo:.0}-{hi:.0} rpm, {} blades",
+                t.0, t.1, self.blades
+            );
+        }
         match (self.motor_kv, self.pack_volts(), self.throttle_pct) {
             (Some(kv), Some(v), Some(t)) => format!(
                 "KV {kv}, {} x {} V = {v:.1} V, throttle {}-{} % -> {lo:.0}-{hi:.0} rpm, {} blades",
@@ -338,6 +448,7 @@ impl Drive {
             rpm: self.rpm_range(),
             near_pct: self.near_pct,
             bands: self.bands().bands,
+            sagged_rotation_hz: self.sagged_rotation_hz(),
             basis: ESTIMATE_NOTE.into(),
             isolation: Vec::new(),
         }
@@ -359,13 +470,9 @@ pub fn judge(bands: &Bands, f_hz: f64) -> Option<BandVerdict> {
             100.0 * (f_hz - hi) / hi
         } else {
             inside.push(b.name.clone());
-            // Depth into the band, relative to the nearer edge.
-            let (d_lo, d_hi) = (f_hz - lo, hi - f_hz);
-            if d_lo <= d_hi {
-                -100.0 * d_lo / lo
-            } else {
-                -100.0 * d_hi / hi
-            }
+            // Depth into the band: the smaller of the two distances, each in percent of its
+            // own edge (the edge is chosen by the measure reported, so no jump at the middle).
+            -100.0 * ((f_hz - lo) / lo).min((hi - f_hz) / hi)
         };
         if best.is_none_or(|(m, _)| margin < m) {
             best = Some((margin, b));
@@ -417,29 +524,31 @@ pub fn assess(
     section
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn margins_are_signed_and_relative_to_the_edge() {
-        let b = Bands {
-            bands: vec![Band {
-                name: "rotation".into(),
-                hz: (100.0, 200.0),
-            }],
-            near_pct: 10.0,
-        };
-        let v = judge(&b, 95.0).unwrap();
-        assert_eq!(v.verdict, Verdict::Near);
-        assert!((v.margin_pct - 5.0).abs() < 1e-12);
-        let v = judge(&b, 230.0).unwrap();
-        assert_eq!(v.verdict, Verdict::Clear);
-        assert!((v.margin_pct - 15.0).abs() < 1e-12);
-        let v = judge(&b, 110.0).unwrap();
-        assert_eq!(v.verdict, Verdict::Inside);
-        assert!((v.margin_pct + 10.0).abs() < 1e-12);
-        let v = judge(&b, 190.0).unwrap();
-        assert!((v.margin_pct + 5.0).abs() < 1e-12);
+/// Judge a stored run against another drive when its spectra are not at hand (pictures,
+/// reports): each mode's verdict and the drive section are replaced. A stored isolation is
+/// kept only when it was worked out over the same bands; otherwise it is dropped and the
+/// returned sentence says so.
+pub fn rejudge(run: &mut crate::run::RunFile, drive: &Drive) -> Option<String> {
+    let bands = drive.bands();
+    let v = verdicts(&bands, &run.modes);
+    for (m, b) in run.modes.iter_mut().zip(v) {
+        m.band = Some(b);
     }
+    let mut section = drive.section();
+    let mut dropped = None;
+    if let Some(old) = run.drive.take() {
+        if old.bands == section.bands {
+            section.isolation = old.isolation;
+        } else if !old.isolation.is_empty() {
+            dropped = Some(format!(
+                "{}: the mount's stored isolation was over other bands and is not shown against this drive",
+                run.variant.label
+            ));
+        }
+    }
+    run.drive = Some(section);
+    dropped
 }
+
+#[cfg(test)]
+mod tests;

@@ -1,7 +1,7 @@
 //! Text of the drive section for `analyze` and `capture`: the bands, each mode's verdict,
 //! and a soft mount's isolation over the bands (80 columns).
 
-use super::{BandVerdict, DriveSection};
+use super::{BandVerdict, DriveSection, SAGGED_CELL_VOLTS};
 use crate::modes::Mode;
 
 fn db(v: Option<f64>) -> String {
@@ -21,6 +21,24 @@ pub fn margin_text(b: &BandVerdict, f_hz: f64, band_hz: Option<(f64, f64)>) -> S
     }
 }
 
+/// The rotation band at the sagged voltage, or why it is not shown (one line, indented).
+pub fn sagged_line(section: &DriveSection) -> String {
+    let d = &section.description;
+    match section.sagged_rotation_hz {
+        Some((lo, hi)) => {
+            format!("  at {SAGGED_CELL_VOLTS} V/cell under load: rotation {lo:.1}-{hi:.1} Hz\n")
+        }
+        None if d.rpm.is_some() => String::new(),
+        None if d.cells.is_none() => format!(
+            "  (no band at {SAGGED_CELL_VOLTS} V/cell under load: the pack voltage was given, not the cells)\n"
+        ),
+        None => format!(
+            "  (the bands are already at {} V/cell, at or below the {SAGGED_CELL_VOLTS} V/cell of a loaded pack)\n",
+            d.volts_per_cell()
+        ),
+    }
+}
+
 /// The drive, its bands, the modes' verdicts and the mount's isolation.
 pub fn summary(section: &DriveSection, modes: &[Mode]) -> String {
     let mut s = format!("drive: {}\n", section.description.describe());
@@ -31,6 +49,7 @@ pub fn summary(section: &DriveSection, modes: &[Mode]) -> String {
     for b in &section.bands {
         s += &format!("  {:<12} {:>7.1}-{:.1} Hz\n", b.name, b.hz.0, b.hz.1);
     }
+    s += &sagged_line(section);
     if !modes.is_empty() {
         s += "mode   f Hz    verdict  nearest band  margin\n";
     }

@@ -53,41 +53,12 @@ pub struct ReportInput<'a> {
     pub svg: &'a str,
     /// The comparison (two runs or more).
     pub comparison: Option<&'a Comparison>,
-    /// The comparison as CSV (`render::render_csv`), shown as the table.
-    pub comparison_csv: Option<&'a str>,
     /// The comparison as `compare` prints it (every section: mounts, bands, predictions).
     pub comparison_text: Option<&'a str>,
     /// Sentences the reader must see (runs not drawn, setup differences, ...).
     pub warnings: &'a [String],
     pub created_utc: &'a str,
     pub safety: &'a str,
-}
-
-fn table_from_csv(csv_text: &str) -> String {
-    let mut r = csv::ReaderBuilder::new()
-        .has_headers(true)
-        .flexible(true)
-        .from_reader(csv_text.as_bytes());
-    let mut s = String::from("<table>\n<thead><tr>");
-    if let Ok(h) = r.headers() {
-        for c in h {
-            s += &format!("<th>{}</th>", esc(c));
-        }
-    }
-    s += "</tr></thead>\n<tbody>\n";
-    for rec in r.records().flatten() {
-        s += "<tr>";
-        for c in &rec {
-            let num = c.parse::<f64>().is_ok();
-            s += &format!(
-                "<td{}>{}</td>",
-                if num { " class=\"n\"" } else { "" },
-                esc(c)
-            );
-        }
-        s += "</tr>\n";
-    }
-    s + "</tbody>\n</table>\n"
 }
 
 fn kv_table(rows: &[(&str, String)]) -> String {
@@ -104,11 +75,24 @@ fn run_section(file: &str, run: &RunFile) -> String {
         "<section class=\"run\">\n<h2>Run: {}</h2>\n<div class=\"run-head\">\n",
         esc(&run.variant.label)
     );
+    // Roles as the analysis used them (`setup.roles`), not as the source declared them: a
+    // WAV declares none.
+    let role = |i: usize| {
+        if st.roles.force == Some(i) {
+            "force"
+        } else if st.roles.response == i {
+            "response"
+        } else if st.roles.base == Some(i) {
+            "base"
+        } else {
+            "unused"
+        }
+    };
     let channels: Vec<String> = st
         .channels
         .iter()
         .enumerate()
-        .map(|(i, c)| format!("{}: {} ({}, {:?})", i, c.name, c.unit, c.role))
+        .map(|(i, c)| format!("{}: {} ({}, {})", i, c.name, c.unit, role(i)))
         .collect();
     let rows = vec![
         ("file", file.to_string()),
@@ -163,6 +147,10 @@ fn run_section(file: &str, run: &RunFile) -> String {
             d.rpm.0,
             d.rpm.1
         );
+        let sagged = crate::drive::report::sagged_line(d);
+        if !sagged.trim().is_empty() {
+            s += &format!("<p class=\"small\">{}</p>\n", esc(sagged.trim()));
+        }
     }
     if let Some(m) = &run.mount {
         s += &format!(
@@ -262,12 +250,12 @@ pub fn report_html(r: &ReportInput<'_>) -> String {
     s += "<h2>Frequency response</h2>\n<div class=\"figure\">\n";
     s += strip_prolog(r.svg);
     s += "\n</div>\n";
-    if let (Some(c), Some(csv_text)) = (r.comparison, r.comparison_csv) {
+    if let Some(c) = r.comparison {
         s += &format!("<h2>Comparison against {}</h2>\n", esc(&c.baseline));
         for v in &c.variants {
             s += &format!("<p><b>{}</b>: {}</p>\n", esc(&v.label), esc(&v.summary));
         }
-        s += &table_from_csv(csv_text);
+        s += &super::html_compare::comparison_table(c);
         s += &format!(
             "<p class=\"small\">Pairing within {:.0} %; frequency floor {:.2} %, damping floor {:.0} % ({}).</p>\n",
             c.settings.max_shift_pct,
@@ -313,9 +301,5 @@ mod tests {
         );
         assert_eq!(strip_prolog("<?xml version=\"1.0\"?>\n<svg/>"), "<svg/>");
         assert_eq!(strip_prolog("<svg/>"), "<svg/>");
-        let t = table_from_csv("a_hz,b\n1.5,x<y\n");
-        assert!(
-            t.contains("<th>a_hz</th>") && t.contains("x&lt;y") && t.contains("class=\"n\">1.5")
-        );
     }
 }

@@ -5,7 +5,9 @@ use crate::error::{Error, Result};
 
 /// Columns: run label, run file, mode number (from 1, frequency order), frequency (Hz),
 /// damping (percent, window's share removed), Q, coherence at the peak, prominence (dB),
-/// 95 % interval of frequency (Hz) and damping (percent), method, flags, band verdict.
+/// 95 % interval of frequency (Hz) and damping (percent), method, flags, band verdict and
+/// the margin to the nearest band edge (percent of that edge; positive outside, negative
+/// inside, see `drive::BandVerdict`).
 /// Empty cells where a value does not exist.
 pub fn modes_csv(runs: &[(String, RunFile)]) -> Result<String> {
     let mut w = csv::Writer::from_writer(Vec::new());
@@ -26,6 +28,7 @@ pub fn modes_csv(runs: &[(String, RunFile)]) -> Result<String> {
         "method",
         "flags",
         "band_verdict",
+        "band_margin_pct",
     ])
     .map_err(enc)?;
     let opt = |v: Option<f64>, digits: usize| v.map_or(String::new(), |v| format!("{v:.digits$}"));
@@ -57,6 +60,7 @@ pub fn modes_csv(runs: &[(String, RunFile)]) -> Result<String> {
                 m.method.clone(),
                 flags.join("; "),
                 band,
+                opt(m.band.as_ref().map(|b| b.margin_pct), 2),
             ])
             .map_err(enc)?;
         }

@@ -219,7 +219,7 @@ pub fn mount_lines(a: &AnalysisSnap) -> Vec<Line<'static>> {
     }
     for iso in a.run.drive.iter().flat_map(|d| &d.isolation) {
         out.push(Line::from(format!(
-            "{} {:.0}-{:.0} Hz {} dB, model {}, coh {}",
+            "{} {:.0}-{:.0} Hz {} dB, model {}, coh min {}",
             short_name(&iso.band),
             iso.hz.0,
             iso.hz.1,

@@ -307,6 +307,90 @@ fn run_file_has_the_schema_fields() {
     // The recording and the CSV are named relative to the JSON and exist.
     assert_eq!(run["recording"]["wav"], "s.wav");
     assert!(dir.join(run["frf_csv"].as_str().unwrap()).exists());
+    assert!(
+        run.get("drive").is_none(),
+        "no drive given, no drive section"
+    );
+
+    // With a drive: the drive section and every mode's band verdict follow the schema, and
+    // the schema declares every field they hold.
+    let drive = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("recordings/tm9.drive");
+    let (code, _, err) = tapmodes(&[
+        "analyze",
+        &p("s.wav"),
+        "--out",
+        &p("d.json"),
+        "--drive",
+        drive.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let run: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("d.json")).unwrap()).unwrap();
+    check(&schema, &run, "run");
+    fn declared(schema: &serde_json::Value, value: &serde_json::Value, at: &str) {
+        let props = schema["properties"].as_object().unwrap();
+        for k in value.as_object().unwrap().keys() {
+            assert!(
+                props.contains_key(k),
+                "{at}: field '{k}' is not in the schema"
+            );
+        }
+    }
+    let d_schema = &schema["properties"]["drive"];
+    declared(d_schema, &run["drive"], "drive");
+    declared(
+        &d_schema["properties"]["description"],
+        &run["drive"]["description"],
+        "drive.description",
+    );
+    let bands = run["drive"]["bands"].as_array().unwrap();
+    assert_eq!(bands.len(), 4, "{bands:?}");
+    for b in bands {
+        let hz = b["hz"].as_array().unwrap();
+        assert_eq!(hz.len(), 2, "{b}");
+        let (lo, hi) = (hz[0].as_f64().unwrap(), hz[1].as_f64().unwrap());
+        assert!(lo > 0.0 && lo <= hi, "{b}");
+        assert!(b["name"].is_string(), "{b}");
+    }
+    assert_eq!(
+        run["drive"]["sagged_rotation_hz"].as_array().map(Vec::len),
+        Some(2)
+    );
+    let modes = run["modes"].as_array().unwrap();
+    assert!(!modes.is_empty());
+    let b_schema = &schema["properties"]["modes"]["items"]["properties"]["band"];
+    let verdicts = b_schema["properties"]["verdict"]["enum"]
+        .as_array()
+        .unwrap();
+    for (i, m) in modes.iter().enumerate() {
+        let band = &m["band"];
+        declared(b_schema, band, &format!("modes[{i}].band"));
+        assert!(verdicts.contains(&band["verdict"]), "{band}");
+        assert!(band["margin_pct"].is_f64(), "{band}");
+        assert!(
+            bands.iter().any(|b| b["name"] == band["name"]),
+            "modes[{i}].band names a band of the drive: {band}"
+        );
+    }
+}
+
+/// The bench cautions close the help of the commands that touch a craft.
+#[test]
+fn safety_text_closes_the_help_of_analyze_capture_and_tui() {
+    for cmd in ["analyze", "capture", "tui"] {
+        let (code, out, err) = tapmodes(&[cmd, "--help"]);
+        assert_eq!(code, 0, "{cmd}: {err}");
+        // The help is wrapped to the terminal: compare words, not lines.
+        let words: Vec<&str> = out.split_whitespace().collect();
+        let tail = words[words.len().saturating_sub(70)..].join(" ");
+        assert!(
+            tail.contains("take the propellers off")
+                && tail.contains("disconnect the flight battery")
+                && tail.contains("secure the")
+                && tail.contains("careful first hover"),
+            "{cmd} --help does not end with the cautions:\n{tail}"
+        );
+    }
 }
 
 /// Re-analysing a run writes a run of the same recording described the same way: the

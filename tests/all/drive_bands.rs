@@ -54,6 +54,19 @@ fn worked_example() {
     let v = judge(&b, 200.0).unwrap();
     assert_eq!((v.verdict, v.name.as_str()), (Verdict::Inside, "rotation"));
     assert!((v.margin_pct + 18.80).abs() < 0.01, "{v:?}");
+    // Depth inside a band is min((f - lo) / lo, (hi - f) / hi), the edge nearer in percent.
+    // 612 Hz in 2x rotation (336.7-962.0 Hz): (612 - 336.7) / 336.7 = 81.77 % from the lower
+    // edge, (962 - 612) / 962 = 36.38 % from the upper one -> -36.38 % (it was -81.8 % when
+    // the edge was chosen in Hz: 275.3 Hz < 350 Hz). In 3x rotation and blade pass
+    // (505.05-1443.0 Hz): (612 - 505.05) / 505.05 = 21.18 %. The band named is the one it
+    // sits deepest in: 2x rotation, -36.38 %.
+    let v = judge(&b, 612.0).unwrap();
+    assert_eq!(
+        (v.verdict, v.name.as_str()),
+        (Verdict::Inside, "2x rotation")
+    );
+    assert!((v.margin_pct + 36.38).abs() < 0.01, "{v:?}");
+    assert_eq!(v.inside.len(), 3, "{v:?}");
     // 2000 Hz: (2000 - 1443) / 1443 = 38.60 % above 3x rotation and blade pass -> clear
     let v = judge(&b, 2000.0).unwrap();
     assert_eq!(v.verdict, Verdict::Clear);
@@ -142,6 +155,33 @@ fn bad_drive_input_is_one_sentence_and_a_nonzero_exit() {
             vec!["--drive", "no-such.drive"],
             "cannot read the drive file",
         ),
+        (
+            vec![
+                "--motor-kv",
+                "1300",
+                "--cells",
+                "6",
+                "--throttle",
+                "0.2:0.9",
+                "--blades",
+                "3",
+            ],
+            "throttle is in percent; did you mean 20:90?",
+        ),
+        (
+            vec![
+                "--motor-kv",
+                "1300",
+                "--volts",
+                "900",
+                "--throttle",
+                "35:100",
+                "--blades",
+                "3",
+            ],
+            "pack voltage must be",
+        ),
+        (vec!["--rpm", "1e308:1e308", "--blades", "2"], "1e308"),
     ];
     for (extra, want) in cases {
         let mut args = vec!["analyze", w, "--out", o];
@@ -151,6 +191,7 @@ fn bad_drive_input_is_one_sentence_and_a_nonzero_exit() {
         assert!(!err.contains("panicked"), "{extra:?}: {err}");
         assert!(err.contains(want), "{extra:?}: {err}");
         assert_eq!(err.trim().lines().count(), 1, "{extra:?}: {err}");
+        assert!(err.len() < 300, "{extra:?}: a short sentence: {err}");
         assert!(!out.exists(), "{extra:?}: wrote a run despite bad input");
     }
     // clap's own checks: --motor-kv without --cells, --rpm with --motor-kv.
@@ -167,6 +208,19 @@ fn bad_drive_input_is_one_sentence_and_a_nonzero_exit() {
             "35:100",
             "--blades",
             "2",
+        ],
+        // --volts stands instead of --cells and --cell-volts, never with them.
+        vec![
+            "--motor-kv",
+            "1300",
+            "--cells",
+            "6",
+            "--volts",
+            "22.2",
+            "--throttle",
+            "35:100",
+            "--blades",
+            "3",
         ],
     ] {
         let mut args = vec!["analyze", w, "--out", o];
@@ -279,4 +333,121 @@ fn demo_recordings_verdicts_and_compare() {
     let want = ch["variant"]["margin_pct"].as_f64().unwrap()
         - ch["baseline"]["margin_pct"].as_f64().unwrap();
     assert!((m - want).abs() < 1e-9 && m < 0.0, "{ch}");
+    // The CSV carries the same, with units in the headers; damping columns name their unit.
+    let (code, out, err) = run(&[
+        "compare",
+        "--csv",
+        dir.join("arm-solid.json").to_str().unwrap(),
+        dir.join("arm-braced.json").to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let mut r = csv::Reader::from_reader(out.as_bytes());
+    let head: Vec<String> = r.headers().unwrap().iter().map(String::from).collect();
+    let col = |name: &str| {
+        head.iter()
+            .position(|h| h == name)
+            .unwrap_or_else(|| panic!("no column {name}: {head:?}"))
+    };
+    assert!(!head.iter().any(|h| h == "baseline_damping"), "{head:?}");
+    let (zb, zv) = (col("baseline_damping_ratio"), col("variant_damping_ratio"));
+    let (vb, vv) = (col("baseline_band_verdict"), col("variant_band_verdict"));
+    let (mv, mb, mvv, mc) = (
+        col("band_movement"),
+        col("baseline_band_margin_pct"),
+        col("variant_band_margin_pct"),
+        col("band_margin_change_pct_points"),
+    );
+    let rows: Vec<csv::StringRecord> = r.records().map(Result::unwrap).collect();
+    let first = rows.iter().find(|x| &x[1] == "mode").unwrap();
+    assert_eq!((&first[vb], &first[vv]), ("clear", "inside"), "{first:?}");
+    assert_eq!(&first[mv], "moved_in");
+    let num = |i: usize| first[i].parse::<f64>().unwrap();
+    assert!((num(mc) - (num(mvv) - num(mb))).abs() < 2e-4, "{first:?}");
+    assert!((num(mc) - m).abs() < 1e-4, "{first:?} vs {m}");
+    assert!(
+        num(zb) > 0.0 && num(zb) < 0.2 && num(zv) > 0.0,
+        "ratios, not percent"
+    );
+    for row in rows.iter().filter(|x| &x[1] == "mode") {
+        assert!(
+            !row[vv].is_empty(),
+            "every pair has its band verdict: {row:?}"
+        );
+    }
+}
+
+/// `--volts` (the pack voltage) gives the same bands as the cells that make it, and the
+/// rotation band at 3.5 V per cell under load is printed under the bands and stored.
+#[test]
+fn pack_voltage_and_the_sagged_band() {
+    let dir = scratch("volts");
+    let wav = root().join("recordings/arm-solid.wav");
+    let w = wav.to_str().unwrap();
+    let a = dir.join("a.json");
+    let b = dir.join("b.json");
+    let common = [
+        "--throttle",
+        "35:100",
+        "--blades",
+        "3",
+        "--motor-kv",
+        "1300",
+    ];
+    let mut args = vec!["analyze", w, "--out", a.to_str().unwrap(), "--cells", "6"];
+    args.extend(common);
+    let (code, out, err) = run(&args);
+    assert_eq!(code, 0, "{err}");
+    // 1300 x 6 x 3.5 / 60 = 455.0 Hz at full throttle, x 0.35 = 159.25 Hz at hover.
+    assert!(
+        out.contains("at 3.5 V/cell under load: rotation 159.2-455.0 Hz"),
+        "{out}"
+    );
+    let mut args = vec![
+        "analyze",
+        w,
+        "--out",
+        b.to_str().unwrap(),
+        "--volts",
+        "22.2",
+    ];
+    args.extend(common);
+    let (code, out, err) = run(&args);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("pack 22.2 V"), "{out}");
+    assert!(
+        out.contains("the pack voltage was given, not the cells"),
+        "{out}"
+    );
+    let (fa, va, da) = modes_of(&a);
+    let (fb, vb, db) = modes_of(&b);
+    assert_eq!(fa, fb);
+    for (x, y) in va.iter().zip(&vb) {
+        assert_eq!(x["verdict"], y["verdict"]);
+        assert!(
+            (x["margin_pct"].as_f64().unwrap() - y["margin_pct"].as_f64().unwrap()).abs() < 1e-9
+        );
+    }
+    let s = da["sagged_rotation_hz"].as_array().unwrap();
+    assert!((s[0].as_f64().unwrap() - 159.25).abs() < 1e-9, "{da}");
+    assert!((s[1].as_f64().unwrap() - 455.0).abs() < 1e-9, "{da}");
+    assert!(db.get("sagged_rotation_hz").is_none(), "{db}");
+    assert_eq!(db["description"]["pack_volts"].as_f64(), Some(22.2));
+    // The drive file's `volts` key.
+    let f = dir.join("v.drive");
+    std::fs::write(
+        &f,
+        "motor_kv = 1300\nvolts = 22.2\nthrottle = 35:100\nblades = 3\n",
+    )
+    .unwrap();
+    let c = dir.join("c.json");
+    let (code, _, err) = run(&[
+        "analyze",
+        w,
+        "--out",
+        c.to_str().unwrap(),
+        "--drive",
+        f.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(modes_of(&c).2["bands"], db["bands"]);
 }

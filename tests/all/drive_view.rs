@@ -125,4 +125,6 @@ fn soft_mount_isolation_is_shown() {
     assert!(t.contains("mount"), "{t}");
     assert!(t.contains("isolates above"), "{t}");
     assert!(t.contains("rot 168-481 Hz"), "{t}");
+    // The coherence shown is the band's lowest: the label says so.
+    assert!(t.contains("coh min "), "{t}");
 }

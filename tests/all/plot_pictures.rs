@@ -435,14 +435,37 @@ fn report_is_one_self_contained_parsable_page() {
         &tapmodes::run::compare::CompareOptions::default(),
     )
     .unwrap();
-    let csv = tapmodes::run::compare::render::render_csv(&cmp).unwrap();
-    let first_header = csv.lines().next().unwrap().split(',').next().unwrap();
+    // The comparison as a readable table: units in the headers, damping in percent,
+    // numbers rounded (not the CSV's raw headers and digits).
     let ths: Vec<String> = doc
         .descendants()
         .filter(|n| n.has_tag_name("th"))
         .filter_map(|n| n.text().map(str::to_string))
         .collect();
-    assert!(ths.iter().any(|t| t == first_header), "no comparison table");
+    for h in [
+        "baseline Hz",
+        "change %",
+        "baseline damping %",
+        "frequency verdict",
+    ] {
+        assert!(ths.iter().any(|t| t == h), "no '{h}' column: {ths:?}");
+    }
+    assert!(
+        !text.contains("baseline_damping"),
+        "raw CSV header in the page"
+    );
+    let m = &cmp.variants[0].matched[0];
+    let damping = format!("{:.2}", 100.0 * m.baseline_damping.unwrap());
+    let tds: Vec<String> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("td"))
+        .filter_map(|n| n.text().map(str::to_string))
+        .collect();
+    assert!(
+        tds.contains(&damping),
+        "damping {damping} % not in the table"
+    );
+    assert!(tds.contains(&format!("{:.1}", m.baseline_hz)));
     for v in &cmp.variants {
         assert!(text.contains(&tapmodes::plot::html::esc(&v.summary)));
     }
@@ -601,4 +624,190 @@ fn app_key_writes_the_current_view_beside_the_runs() {
         d.join(svg.file_stem().unwrap().to_str().unwrap().to_string() + "-2.svg")
             .exists()
     );
+}
+
+fn page(text: &str) -> roxmltree::Document<'_> {
+    roxmltree::Document::parse_with_options(
+        text,
+        roxmltree::ParsingOptions {
+            allow_dtd: true,
+            ..roxmltree::ParsingOptions::default()
+        },
+    )
+    .unwrap()
+}
+
+/// `report --drive` and `plot --drive --modes-csv` judge every run against the given drive,
+/// also runs that store none; a run analysed from a WAV shows the roles the analysis used.
+#[test]
+fn a_given_drive_reaches_every_run_and_roles_come_from_the_setup() {
+    let d = temp_dir("report-drive");
+    std::fs::copy(repo("recordings/arm-solid.wav"), d.join("arm-solid.wav")).unwrap();
+    let solid = d.join("solid.json");
+    let (code, _, err) = tapmodes(&[
+        "analyze",
+        d.join("arm-solid.wav").to_str().unwrap(),
+        "--out",
+        solid.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let braced = repo("recordings/arm-braced.json");
+    let drive_file = repo("recordings/tm9.drive");
+    let html = d.join("r.html");
+    let (code, _, err) = tapmodes(&[
+        "report",
+        solid.to_str().unwrap(),
+        braced.to_str().unwrap(),
+        "--drive",
+        drive_file.to_str().unwrap(),
+        "--out",
+        html.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let text = std::fs::read_to_string(&html).unwrap();
+    let doc = page(&text);
+    let h3 = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("h3") && n.text() == Some("Excitation bands"))
+        .count();
+    assert_eq!(h3, 2, "every run section has the bands");
+    // 1300 x 6 x 3.5 / 60 = 455.0 Hz at full throttle, x 0.35 = 159.25 Hz.
+    assert_eq!(
+        text.matches("at 3.5 V/cell under load: rotation 159.2-455.0 Hz")
+            .count(),
+        2
+    );
+    // Each mode's verdict, through the library's own function.
+    let drive = tapmodes::drive::file::load(&drive_file).unwrap();
+    let tds: Vec<String> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("td"))
+        .filter_map(|n| n.text().map(str::to_string))
+        .collect();
+    for p in [&solid, &braced] {
+        let run = tapmodes::run::RunFile::load(p).unwrap();
+        assert!(run.drive.is_none(), "the run stores no drive");
+        for v in tapmodes::drive::verdicts(&drive.bands(), &run.modes) {
+            let want = format!("{} {} ({:+.1} %)", v.verdict.label(), v.name, v.margin_pct);
+            assert!(tds.contains(&want), "{want} missing");
+        }
+        // Roles as the analysis used them, lower case.
+        let st = &run.setup;
+        let f = st.roles.force.unwrap();
+        let c = &st.channels[f];
+        let want = format!("{f}: {} ({}, force)", c.name, c.unit);
+        assert!(tds.iter().any(|t| t.contains(&want)), "{want} missing");
+        let r = st.roles.response;
+        let want = format!(
+            "{r}: {} ({}, response)",
+            st.channels[r].name, st.channels[r].unit
+        );
+        assert!(tds.iter().any(|t| t.contains(&want)), "{want} missing");
+    }
+    assert!(!text.contains("Unused"), "role names are lower case words");
+    // The compare table has the band column.
+    assert!(text.contains("motor bands before -&gt; after"));
+
+    // plot --modes-csv with --drive: band columns filled for runs without a stored drive.
+    let csv = d.join("m.csv");
+    let (code, _, err) = tapmodes(&[
+        "plot",
+        solid.to_str().unwrap(),
+        braced.to_str().unwrap(),
+        "--drive",
+        drive_file.to_str().unwrap(),
+        "--out",
+        d.join("p.svg").to_str().unwrap(),
+        "--modes-csv",
+        csv.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let table = std::fs::read_to_string(&csv).unwrap();
+    let mut r = csv::Reader::from_reader(table.as_bytes());
+    let head = r.headers().unwrap().clone();
+    let vi = head.iter().position(|h| h == "band_verdict").unwrap();
+    let mi = head.iter().position(|h| h == "band_margin_pct").unwrap();
+    let fi = head.iter().position(|h| h == "frequency_hz").unwrap();
+    let bands = drive.bands();
+    let mut rows = 0;
+    for rec in r.records() {
+        let rec = rec.unwrap();
+        let f: f64 = rec[fi].parse().unwrap();
+        let v = tapmodes::drive::judge(&bands, f).unwrap();
+        assert_eq!(&rec[vi], format!("{} {}", v.verdict.label(), v.name));
+        let m: f64 = rec[mi].parse().unwrap();
+        // Frequency and margin are rounded in the table (3 and 2 decimals).
+        assert!((m - v.margin_pct).abs() < 0.02, "{m} vs {}", v.margin_pct);
+        rows += 1;
+    }
+    assert!(rows >= 4, "{table}");
+}
+
+/// A frequency range that misses every curve, or a mode table that cannot be written, is
+/// one sentence and writes nothing.
+#[test]
+fn nothing_is_written_when_an_output_cannot_be_made() {
+    let d = temp_dir("plot-nothing");
+    let a = repo("recordings/arm-solid.json");
+    let svg = d.join("x.svg");
+    let (code, out, err) = tapmodes(&[
+        "plot",
+        a.to_str().unwrap(),
+        "--freq-range",
+        "5000:6000",
+        "--out",
+        svg.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 1, "{out}");
+    assert!(
+        err.lines().count() == 1 && err.contains("no curve has a line in 5000.0-6000.0 Hz"),
+        "{err}"
+    );
+    assert!(!svg.exists());
+    let (code, _, err) = tapmodes(&[
+        "plot",
+        a.to_str().unwrap(),
+        "--out",
+        svg.to_str().unwrap(),
+        "--modes-csv",
+        d.join("nodir/m.csv").to_str().unwrap(),
+    ]);
+    assert_eq!(code, 1);
+    assert!(
+        err.lines().count() == 1 && err.contains("does not exist"),
+        "{err}"
+    );
+    assert!(
+        !svg.exists(),
+        "the picture was written although the table could not be"
+    );
+    // --freq-range is the one band parser's closed form: both sides, LO below HI.
+    for bad in ["20:", "600:500", "0:100", "800"] {
+        let (code, _, err) = tapmodes(&[
+            "plot",
+            a.to_str().unwrap(),
+            "--freq-range",
+            bad,
+            "--out",
+            svg.to_str().unwrap(),
+        ]);
+        assert_eq!(code, 2, "{bad}: {err}");
+        assert!(!svg.exists());
+    }
+}
+
+/// Frequency tick labels use one format per axis (never "800, 1k, 1200").
+#[test]
+fn tick_labels_share_one_format_per_axis() {
+    let r = tapmodes::plot::render_svg(
+        &two_peaks(),
+        &PlotOptions {
+            range_hz: Some((600.0, 1500.0)),
+            ..PlotOptions::default()
+        },
+    )
+    .unwrap();
+    let t = texts_of(&r.svg);
+    assert!(t.iter().any(|s| s == "1000"), "{t:?}");
+    assert!(!t.iter().any(|s| s == "1k"), "{t:?}");
 }

@@ -8,6 +8,7 @@ mod mount;
 pub mod predicted;
 pub mod render;
 mod repeats;
+mod table_csv;
 mod variant;
 
 pub use mount::{IsolationChange, MountComparison, MountSide};
