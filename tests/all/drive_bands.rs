@@ -380,7 +380,7 @@ fn demo_recordings_verdicts_and_compare() {
 /// rotation band at 3.5 V per cell under load is printed under the bands and stored.
 #[test]
 fn pack_voltage_and_the_sagged_band() {
-    let dir = scratch("volts");
+    let dir = temp_dir("drive-bands-volts");
     let wav = root().join("recordings/arm-solid.wav");
     let w = wav.to_str().unwrap();
     let a = dir.join("a.json");
