@@ -11,6 +11,7 @@
 //! Levenberg-Marquardt on the summed squared residual of all points, started from the
 //! single-curve fit (`modes::fit::fit_band`) of the point where the modes show best.
 
+pub mod plan_fit;
 pub mod points;
 
 use crate::modes::fit::{self, Seed};
