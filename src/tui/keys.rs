@@ -84,7 +84,7 @@ pub const HELP_PAGES: usize = 5;
 pub const TASKS: &[&str] = &[
     "Strip test   tapmodes tui --strip-mm L:W:T --strip-g M",
     "  Hang the strip free: threads at 0.224 x length from each end.",
-    "  E: tap the middle of the face on the centre line; sensor at one end, on it.",
+    "  E: tap the middle of the face on the centre line; sensor on it at one end.",
     "  G: tap near a corner; sensor near a corner of the other end.",
     "  The panel shows E and G (+-U, k = 2) and the modes taken; s also writes",
     "  NAME.strip.json beside the run files.",
