@@ -428,8 +428,13 @@ pub fn list_runs(out_dir: &Path, given: &[PathBuf]) -> Vec<PathBuf> {
             rd.filter_map(|e| e.ok().map(|e| e.path()))
                 .filter(|p| p.extension().is_some_and(|e| e == "json"))
                 .filter(|p| {
-                    !p.file_name()
-                        .is_some_and(|n| n.to_string_lossy().ends_with(".truth.json"))
+                    !p.file_name().is_some_and(|n| {
+                        // Simulator truth, strip files and shape files are not runs.
+                        let n = n.to_string_lossy();
+                        [".truth.json", ".strip.json", ".shapes.json"]
+                            .iter()
+                            .any(|e| n.ends_with(e))
+                    })
                 })
                 .collect()
         })

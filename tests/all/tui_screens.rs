@@ -376,7 +376,10 @@ fn help_pages_explain_the_words_and_the_workflow() {
     app.press('?');
     for (w, h) in SIZES {
         let s = app.screen(w, h);
-        assert!(s.contains("Help 5/5: strip test and point walk"), "{w}x{h}\n{s}");
+        assert!(
+            s.contains("Help 5/5: strip test and point walk"),
+            "{w}x{h}\n{s}"
+        );
         for line in tapmodes::tui::keys::TASKS {
             assert!(s.contains(line), "{w}x{h}: '{line}'\n{s}");
         }

@@ -131,6 +131,9 @@ fn strip_test_shows_the_guide_then_e_and_g_and_saves_the_strip_file() {
     assert!((strip.youngs_modulus_pa / 45.0e9 - 1.0).abs() < 0.005);
     assert_eq!(strip.recording, "strip.wav");
     assert!(out.join("strip.json").is_file());
+    // The run picker offers runs only, not the strip file.
+    let listed = tapmodes::tui::app::list_runs(&out, &[]);
+    assert_eq!(listed, vec![out.join("strip.json")]);
     app.shutdown();
 }
 
@@ -239,7 +242,10 @@ fn the_walk_keeps_goes_back_retakes_and_never_overwrites() {
     taps(&mut app, 2);
     app.press(']');
     let notice = app.model.notice.clone().unwrap_or_default();
-    assert!(notice.contains("never overwritten"), "{notice}");
+    assert!(
+        notice.starts_with("p2.wav exists: never overwritten"),
+        "{notice}"
+    );
     assert_eq!(walk(&app).current, 1);
     assert_eq!(std::fs::read(dir.join("p2.wav")).unwrap(), b"not ours");
     let kept = app.model.counts();

@@ -383,8 +383,8 @@ impl Engine {
         }
         if crate::run::naming::stem_taken(&dir, &stem) {
             out.push(Update::Problem(format!(
-                "'{}' exists already and is never overwritten: the taps go on into this take; move the old files ({stem}.wav, .json, .csv) away and press ] again, or go on with [ / r",
-                dir.join(format!("{stem}.wav")).display()
+                "{stem}.wav exists: never overwritten; move its files ({stem}.wav, .json, .csv in '{}') away, then ] again; the taps go on into this take",
+                dir.display()
             )));
             return;
         }
@@ -469,7 +469,8 @@ impl Engine {
             trigger_channel: d.trigger_config().channel,
             threshold: d.threshold(),
             traces,
-            armed: self.armed,
+            // A parked walk takes no taps: the status line says so.
+            armed: self.armed && !self.parked,
             overrun_frames: self.overrun_frames,
             link: self.link,
             unsaved: self.dirty() && !self.analysis.hits().is_empty(),
