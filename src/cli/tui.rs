@@ -56,7 +56,12 @@ pub struct TuiArgs {
     /// Point walk: tap the plan's points one after the other (`name | direction |
     /// recording.wav` a line); each point's recording is written where the plan says
     /// (never over an existing file), then the shapes over all points.
-    #[arg(long, value_name = "PLAN.txt", help_heading = "Tasks")]
+    #[arg(
+        long,
+        value_name = "PLAN.txt",
+        help_heading = "Tasks",
+        conflicts_with_all = ["out", "variant"]
+    )]
     pub plan: Option<PathBuf>,
 }
 

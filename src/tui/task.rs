@@ -214,6 +214,14 @@ pub(super) fn act(m: &mut Model, a: Action, fx: &mut Vec<Effect>) {
                     index: w.current,
                     dir: p.dir.clone(),
                     stem: p.stem.clone(),
+                    label: p.point.name.clone(),
+                    note: format!(
+                        "point {} of {} of the plan '{}', direction {}",
+                        w.current + 1,
+                        w.points.len(),
+                        w.plan.display(),
+                        p.point.direction
+                    ),
                 };
                 m.send(cmd, fx);
             }

@@ -206,6 +206,13 @@ fn the_walk_keeps_goes_back_retakes_and_never_overwrites() {
         assert!(dir.join(f).is_file(), "{f}");
     }
     assert!(!dir.join("p1.take.wav").exists());
+    let run = tapmodes::run::RunFile::load(&dir.join("p1.json")).unwrap();
+    assert_eq!(run.variant.label, "left arm tip");
+    assert!(
+        run.variant.note.starts_with("point 1 of 3 of the plan"),
+        "{}",
+        run.variant.note
+    );
     assert_eq!(app.model.counts(), (0, 0), "point 2 starts empty");
     assert!(
         app.screen(80, 24)
@@ -370,6 +377,14 @@ fn bad_plans_stop_the_app_before_it_starts() {
         assert_eq!(err.trim().lines().count(), 1, "{err}");
         assert!(err.contains(says), "{err}");
     }
+    let (code, _, err) = crate::common::tapmodes(&[
+        "tui",
+        "--plan",
+        bad.to_str().unwrap(),
+        "--out",
+        dir.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 2, "the plan says where the files go: {err}");
     let (code, _, err) =
         crate::common::tapmodes(&["tui", "--strip-mm", "180:x:2", "--strip-g", "11"]);
     assert_eq!(code, 1);

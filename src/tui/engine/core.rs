@@ -296,7 +296,23 @@ impl Engine {
                 "every point is kept: nothing to save (open a point again with [ or r)".into(),
             )),
             Cmd::Save => out.extend(self.save(false)),
-            Cmd::KeepPoint { index, dir, stem } => self.keep_point(index, dir, stem, &mut out),
+            Cmd::KeepPoint {
+                index,
+                dir,
+                stem,
+                label,
+                note,
+            } => {
+                let variant = Variant {
+                    label,
+                    note: format!(
+                        "{note}; recorded with the terminal app from {}",
+                        self.setup.info.source
+                    ),
+                    mass_g: None,
+                };
+                self.keep_point(index, dir, stem, variant, &mut out)
+            }
             Cmd::NewPoint { dir, label } => {
                 self.label = label.clone();
                 match self.fresh_analysis() {
@@ -367,7 +383,14 @@ impl Engine {
     /// Point walk: hand the take to the saver as point `index`'s recording, unless there
     /// is nothing to keep or the point's files exist already (never replaced; the taps go
     /// on). The saver confirms with `Update::PointKept`.
-    fn keep_point(&mut self, index: usize, dir: PathBuf, stem: String, out: &mut Vec<Update>) {
+    fn keep_point(
+        &mut self,
+        index: usize,
+        dir: PathBuf,
+        stem: String,
+        variant: Variant,
+        out: &mut Vec<Update>,
+    ) {
         if self.parked {
             out.push(Update::Problem(
                 "every point is kept: open a point again with [ or r first".into(),
@@ -388,7 +411,11 @@ impl Engine {
             )));
             return;
         }
-        let files = Box::new(self.run_files());
+        let files = Box::new(RunFiles::of(
+            &self.analysis,
+            variant,
+            self.setup.drive.as_ref(),
+        ));
         out.extend(self.saver.submit(Job::Keep {
             index,
             files,

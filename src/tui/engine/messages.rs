@@ -46,6 +46,9 @@ pub enum Cmd {
         index: usize,
         dir: PathBuf,
         stem: String,
+        /// The point as the run file names it: its name, and where it sits in the plan.
+        label: String,
+        note: String,
     },
     /// Point walk: a fresh analysis and a new take recorded in `dir` under `label`.
     NewPoint {
