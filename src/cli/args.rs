@@ -424,7 +424,15 @@ mod tests {
                 assert!(
                     matches!(
                         h,
-                        Some("Source" | "Channels" | "Trigger" | "Spectra" | "Modes" | "Outputs")
+                        Some(
+                            "Source"
+                                | "Channels"
+                                | "Trigger"
+                                | "Spectra"
+                                | "Modes"
+                                | "Outputs"
+                                | "Tasks"
+                        )
                     ),
                     "{sub} --{long} is under {h:?}"
                 );

@@ -7,8 +7,7 @@ use crate::error::Result;
 use crate::pipeline::analyse_source;
 use crate::run::compare::matching::{Candidate, MatchRules, pair_modes};
 use crate::run::{FileKind, safe_path, validate};
-use crate::shapes::frf::PointFrfs;
-use crate::shapes::points::{self, ShapeFile, ShapeMode};
+use crate::shapes::points::{self, ShapeFile};
 use crate::strip::bar::{self, TapPlan};
 use clap::Args;
 use std::path::{Path, PathBuf};
@@ -87,54 +86,6 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
         validate::check_analysis(&cfg, &info, &roles, "the command line")?;
         analyse_source(&mut src, roles, cfg, false)
     };
-    let mut seed_notes = Vec::new();
-    let data = points::analyse_points(&a.plan, &plan, &open, &mut seed_notes)?;
-    let names: Vec<String> = plan.iter().map(|p| p.name.clone()).collect();
-    let (seeds, mut set_aside) = points::seeds_from(&data.modes, &names);
-    if seeds.is_empty() {
-        let why: Vec<String> = set_aside.iter().map(|s| s.reason.clone()).collect();
-        crate::fail!(
-            "no mode showed at {} or more points, so there are no shapes to fit{}",
-            points::MIN_POINTS,
-            if why.is_empty() {
-                String::new()
-            } else {
-                format!(": {}", why.join("; "))
-            }
-        );
-    }
-    let (fitted, mut notes) = points::shapes_over_points(&data.freqs, &data.frfs, &seeds);
-    notes.splice(0..0, seed_notes);
-    let mut found = Vec::new();
-    for (s, err) in fitted {
-        match points::doubtful_shape(&s, &names) {
-            Some(aside) => set_aside.push(aside),
-            None => found.push((s, err)),
-        }
-    }
-    if found.is_empty() {
-        let mut why = notes.clone();
-        why.extend(set_aside.iter().map(|s| s.reason.clone()));
-        crate::fail!("no shape could be kept: {}", why.join("; "));
-    }
-    for (s, _) in &found {
-        if s.realness < points::DOUBTFUL_REALNESS {
-            notes.push(format!(
-                "the {:.1} Hz shape is far from real (realness {:.2}): a non-proportionally damped mode or a poor fit; its signs are doubtful",
-                s.frequency_hz, s.realness
-            ));
-        }
-    }
-    set_aside.sort_by(|x, y| x.frequency_hz.total_cmp(&y.frequency_hz));
-    let (frf, frf_notes) = PointFrfs::build(
-        &data.freqs,
-        &data.frfs,
-        &data.coherence,
-        data.band_hz,
-        &data.unit,
-        &names,
-    );
-    notes.extend(frf_notes);
     let label = a
         .label
         .as_ref()
@@ -144,21 +95,7 @@ pub fn run(a: &ShapesArgs) -> Result<()> {
                 .file_stem()
                 .map_or("shapes".into(), |s| s.to_string_lossy().into_owned())
         });
-    let file = ShapeFile {
-        kind: points::KIND.into(),
-        schema_version: points::SCHEMA_VERSION,
-        tool_version: env!("CARGO_PKG_VERSION").into(),
-        created_utc: crate::run::now_rfc3339(),
-        label,
-        points: plan,
-        modes: found
-            .into_iter()
-            .map(|(shape, fit_error)| ShapeMode { shape, fit_error })
-            .collect(),
-        set_aside,
-        notes,
-        frf: Some(frf),
-    };
+    let file = crate::shapes::plan_fit::fit_plan(&a.plan, &plan, &label, &open)?;
     print!("{}", render(&file));
     if let Some(out) = &a.out {
         file.save(out)?;

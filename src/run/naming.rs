@@ -35,10 +35,10 @@ pub fn stem_for(label: &str) -> String {
     }
 }
 
-/// Whether any of a run's files (`.wav`, `.json`, `.csv`, of any kind, even a dangling
-/// link) exists under `stem` in `dir`.
+/// Whether any of a run's files (`.wav`, `.json`, `.csv`, or the app's strip file
+/// `.strip.json`; of any kind, even a dangling link) exists under `stem` in `dir`.
 pub fn stem_taken(dir: &Path, stem: &str) -> bool {
-    ["wav", "json", "csv"]
+    ["wav", "json", "csv", "strip.json"]
         .iter()
         .any(|ext| std::fs::symlink_metadata(dir.join(format!("{stem}.{ext}"))).is_ok())
 }

@@ -13,6 +13,7 @@
 
 pub mod frf;
 pub mod picture;
+pub mod plan_fit;
 pub mod points;
 
 use crate::modes::fit::{self, Seed};

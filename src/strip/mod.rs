@@ -7,6 +7,7 @@ pub mod bar;
 pub mod compare;
 pub mod formulas;
 pub mod identify;
+pub mod session;
 
 use crate::modes::Mode;
 use formulas::Strip;

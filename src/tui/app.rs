@@ -4,7 +4,9 @@
 use super::Launch;
 use super::engine::{Cmd, Engine, EngineSetup, Inbox, Update, Worker, spawn_worker};
 use super::model::{Effect, Header, LoadedRun, Model, Msg, update};
+use super::task::{Fit, Task};
 use super::view::view;
+use super::walk_fit::{self, FitJob};
 use crate::error::{Error, Result};
 use crate::run::RunFile;
 use crate::run::curve_read::read_curve_csv;
@@ -43,23 +45,46 @@ pub struct App {
     pub model: Model,
     link: Link,
     compare_with: Vec<PathBuf>,
+    /// The session's channel roles and settings (the point walk's fit needs them).
+    fit_with: (crate::signal::Roles, crate::pipeline::AnalysisConfig),
+    /// Threaded: where work done off the loop (the shape fit) reports.
+    inbox: Option<Sender<Inbox>>,
 }
 
-fn prepare(launch: &Launch) -> Result<(Engine, Model)> {
+fn prepare(launch: &Launch, task: Task) -> Result<(Engine, Model)> {
     let info = launch.source.info().clone();
-    let label = if launch.variant.trim().is_empty() {
+    let mut label = if launch.variant.trim().is_empty() {
         "run".to_string()
     } else {
         launch.variant.trim().to_string()
     };
-    let engine = Engine::new(EngineSetup {
+    let mut out_dir = launch.out_dir.clone();
+    let mut header_dir = launch.out_dir.clone();
+    let mut strip = None;
+    let mut parked = false;
+    match &task {
+        Task::Free => {}
+        Task::Strip(s) => strip = Some(*s),
+        Task::Walk(w) => {
+            // A take of the current point, recorded beside the plan's recording.
+            out_dir = w.point().dir.clone();
+            label = w.point().take_label();
+            header_dir = w.plan.parent().unwrap_or(Path::new(".")).to_path_buf();
+            parked = w.complete;
+        }
+    }
+    let mut engine = Engine::new(EngineSetup {
         info: info.clone(),
         roles: launch.roles,
         config: launch.config.clone(),
-        out_dir: launch.out_dir.clone(),
+        out_dir,
         label: label.clone(),
         drive: launch.drive.clone(),
+        strip,
     })?;
+    if parked {
+        engine.park();
+    }
     let a = engine.analysis();
     let mut available = Vec::new();
     if launch.roles.force.is_some() {
@@ -75,7 +100,7 @@ fn prepare(launch: &Launch) -> Result<(Engine, Model)> {
         channels: info.channels.clone(),
         roles: launch.roles,
         demo: launch.demo,
-        out_dir: launch.out_dir.clone(),
+        out_dir: header_dir,
         available,
         band_hz: a.config().modes.band_hz,
         resolution_hz: info.sample_rate / a.detector().record_len() as f64,
@@ -90,14 +115,22 @@ fn prepare(launch: &Launch) -> Result<(Engine, Model)> {
     model.auto_tap_s = launch.auto_tap_s.filter(|s| *s > 0.0);
     model.auto_tap_on = launch.demo && model.auto_tap_s.is_some();
     model.drive = launch.drive.clone();
+    model.task = task;
     Ok((engine, model))
 }
 
 impl App {
     /// An app whose engine runs inline; feed it with `pump`. No terminal, no threads.
     pub fn headless(launch: Launch) -> Result<App> {
-        let (engine, model) = prepare(&launch)?;
+        Self::headless_with(launch, Task::Free)
+    }
+
+    /// As `headless`, for a strip test or a point walk.
+    pub fn headless_with(launch: Launch, task: Task) -> Result<App> {
+        let (engine, model) = prepare(&launch, task)?;
         let mut app = App {
+            fit_with: (launch.roles, launch.config.clone()),
+            inbox: None,
             model,
             link: Link::Inline {
                 engine: Box::new(engine),
@@ -113,11 +146,19 @@ impl App {
     /// An app whose engine runs on a worker thread fed by a live acquisition thread;
     /// updates arrive on `inbox` (feed them to `inbox_msg`).
     pub fn threaded(launch: Launch, inbox: Sender<Inbox>) -> Result<App> {
-        let (engine, model) = prepare(&launch)?;
+        Self::threaded_with(launch, Task::Free, inbox)
+    }
+
+    /// As `threaded`, for a strip test or a point walk.
+    pub fn threaded_with(launch: Launch, task: Task, inbox: Sender<Inbox>) -> Result<App> {
+        let (engine, model) = prepare(&launch, task)?;
+        let fit_with = (launch.roles, launch.config.clone());
         let feed = LiveFeed::start(launch.source);
         let (tx, rx) = std::sync::mpsc::channel();
-        let worker = spawn_worker(engine, feed, rx, inbox);
+        let worker = spawn_worker(engine, feed, rx, inbox.clone());
         let mut app = App {
+            fit_with,
+            inbox: Some(inbox),
             model,
             link: Link::Threaded { cmds: tx, worker },
             compare_with: launch.compare_with,
@@ -130,6 +171,46 @@ impl App {
         if !self.compare_with.is_empty() {
             let paths = self.compare_with.clone();
             self.effect(Effect::LoadRuns(paths));
+        }
+        // A walk whose points were all recorded before: straight to the shapes.
+        if let Task::Walk(w) = &mut self.model.task
+            && w.complete
+        {
+            w.fit = Fit::Running;
+            self.model.notice = Some(format!(
+                "every point of '{}' has its recording: fitting the shapes...",
+                w.plan.display()
+            ));
+            self.effect(Effect::FitShapes);
+        }
+    }
+
+    /// Fit the walk's shapes: on a thread of its own in the app (the screen goes on), at
+    /// once inline.
+    fn fit_shapes(&mut self) {
+        let Task::Walk(w) = &self.model.task else {
+            return;
+        };
+        let job = FitJob {
+            plan: w.plan.clone(),
+            points: w.points.iter().map(|p| p.point.clone()).collect(),
+            label: w.label.clone(),
+            roles: self.fit_with.0,
+            config: self.fit_with.1.clone(),
+        };
+        let work = move || {
+            walk_fit::run(&job)
+                .map(|(f, p)| (std::sync::Arc::new(f), p))
+                .map_err(|e| e.to_string())
+        };
+        match &self.inbox {
+            Some(tx) => {
+                let tx = tx.clone();
+                std::thread::spawn(move || {
+                    let _ = tx.send(Inbox::Update(Update::Shapes(work())));
+                });
+            }
+            None => self.dispatch(Msg::Update(Update::Shapes(work()))),
         }
     }
 
@@ -178,6 +259,7 @@ impl App {
                     Err(e) => e.to_string(),
                 });
             }
+            Effect::FitShapes => self.fit_shapes(),
             Effect::Quit => self.shutdown(),
         }
     }
@@ -346,8 +428,13 @@ pub fn list_runs(out_dir: &Path, given: &[PathBuf]) -> Vec<PathBuf> {
             rd.filter_map(|e| e.ok().map(|e| e.path()))
                 .filter(|p| p.extension().is_some_and(|e| e == "json"))
                 .filter(|p| {
-                    !p.file_name()
-                        .is_some_and(|n| n.to_string_lossy().ends_with(".truth.json"))
+                    !p.file_name().is_some_and(|n| {
+                        // Simulator truth, strip files and shape files are not runs.
+                        let n = n.to_string_lossy();
+                        [".truth.json", ".strip.json", ".shapes.json"]
+                            .iter()
+                            .any(|e| n.ends_with(e))
+                    })
                 })
                 .collect()
         })

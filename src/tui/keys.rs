@@ -36,6 +36,14 @@ pub enum Action {
     Tap,
     AutoTap,
     NewRun,
+    /// Point walk: keep this take as the point's recording and go to the next point.
+    KeepPoint,
+    /// Point walk: go back one point.
+    PointBack,
+    /// Point walk: take this point again (a fresh take).
+    Retake,
+    /// Point walk: the next mode's shape bars.
+    NextShape,
     Quit,
 }
 
@@ -68,8 +76,25 @@ pub const KEYS: &[(&str, Action, &str)] = &[
     ("q", Action::Quit, "quit (asks if unsaved)"),
 ];
 
-/// Pages of the help overlay: keys, the words on screen (two pages), the workflow.
-pub const HELP_PAGES: usize = 4;
+/// Pages of the help overlay: keys, the words on screen (two pages), the workflow, the
+/// strip test and the point walk.
+pub const HELP_PAGES: usize = 5;
+
+/// The strip test and the point walk (the help's last page).
+pub const TASKS: &[&str] = &[
+    "Strip test   tapmodes tui --strip-mm L:W:T --strip-g M",
+    "  Hang the strip free: threads at 0.224 x length from each end.",
+    "  E: tap the middle of the face on the centre line; sensor on it at one end.",
+    "  G: tap near a corner; sensor near a corner of the other end.",
+    "  The panel shows E and G (+-U, k = 2) and the modes taken; s also writes",
+    "  NAME.strip.json beside the run files.",
+    "Point walk   tapmodes tui --plan PLAN.txt",
+    "  Tap the point named on the top line (5-10 taps), check coh, then",
+    "  ]  keep the take as the plan's recording and open the next point",
+    "  [  back one point     r  take this point again (the take so far stays)",
+    "  A recording on disk is never overwritten. After the last point the shapes",
+    "  are fitted over all points (PLAN.shapes.json); b shows the next mode(s).",
+];
 
 /// The abbreviations of the curve and the mode table (and the command line's tables), as
 /// (term, meaning); a blank term continues the line above.
@@ -216,6 +241,10 @@ pub fn action_for(key: &KeyEvent) -> Option<Action> {
         KeyCode::Char(' ') => Action::Tap,
         KeyCode::Char('t') => Action::AutoTap,
         KeyCode::Char('n') => Action::NewRun,
+        KeyCode::Char(']') => Action::KeepPoint,
+        KeyCode::Char('[') => Action::PointBack,
+        KeyCode::Char('r') => Action::Retake,
+        KeyCode::Char('b') => Action::NextShape,
         KeyCode::Char('q') => Action::Quit,
         _ => return None,
     })

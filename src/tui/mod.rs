@@ -12,7 +12,9 @@ pub mod engine;
 pub mod keys;
 mod modal;
 pub mod model;
+pub mod task;
 pub mod view;
+pub mod walk_fit;
 
 use crate::error::{Error, Result};
 use crate::pipeline::AnalysisConfig;
@@ -86,6 +88,11 @@ impl Drop for TerminalGuard {
 /// first and the files are finished after; ended from outside, the run files are written
 /// over everything taken (see `App::stop_saving`) and the app exits 0.
 pub fn run(launch: Launch) -> Result<()> {
+    run_with(launch, task::Task::Free)
+}
+
+/// As `run`, for a strip test or a point walk.
+pub fn run_with(launch: Launch, task: task::Task) -> Result<()> {
     let (tx, rx) = std::sync::mpsc::channel::<Inbox>();
     let signalled = Arc::new(AtomicBool::new(false));
     {
@@ -98,7 +105,7 @@ pub fn run(launch: Launch) -> Result<()> {
             let _ = tx.send(Inbox::Signal);
         });
     }
-    let mut app = App::threaded(launch, tx.clone())?;
+    let mut app = App::threaded_with(launch, task, tx.clone())?;
     let started = std::cell::Cell::new(false);
     let result = (|| {
         let _guard = TerminalGuard::enter()?;

@@ -117,6 +117,10 @@ pub(super) fn key(m: &mut Model, k: KeyEvent, fx: &mut Vec<Effect>) {
             }
             _ => m.mode = Mode::Normal,
         },
+        Mode::ConfirmLeave { to } => match k.code {
+            KeyCode::Char('y') => super::task::open_point(m, to, fx),
+            _ => m.mode = Mode::Normal,
+        },
         Mode::ConfirmNewRun => match k.code {
             KeyCode::Char('s') => {
                 m.send(Cmd::Save, fx);

@@ -3,6 +3,7 @@
 
 use super::engine::{AnalysisSnap, Cmd, LiveSnap, Update};
 pub use super::keys::{Action, KEYS, SAFETY, action_for};
+use super::task::Task;
 use crate::hits::TriggerLevel;
 use crate::run::RunFile;
 use crate::run::compare::{VariantComparison, compare};
@@ -54,6 +55,10 @@ pub enum Mode {
     },
     ConfirmQuit,
     ConfirmNewRun,
+    /// Point walk: leave the current point (its take has taps) for point `to`.
+    ConfirmLeave {
+        to: usize,
+    },
 }
 
 /// The lower-right panel on screens too narrow for both tables.
@@ -74,6 +79,9 @@ pub enum Effect {
     LoadRuns(Vec<PathBuf>),
     /// Write the current view's plot beside the run files (`plot::view`).
     WritePicture,
+    /// Point walk: every point is recorded; fit the shapes and write the shape file (then
+    /// `Update::Shapes`).
+    FitShapes,
     Quit,
 }
 
@@ -146,6 +154,8 @@ pub struct Model {
     pub saved_generation: u64,
     /// The motors' excitation bands drawn on the curve (see `drive`).
     pub drive: Option<crate::drive::Drive>,
+    /// What the session is for: the free run, a strip test or a point walk.
+    pub task: Task,
 }
 
 impl Model {
@@ -181,6 +191,7 @@ impl Model {
             log_freq: false,
             saved_generation: 0,
             drive: None,
+            task: Task::Free,
         }
     }
 
@@ -421,7 +432,13 @@ pub(super) fn act(m: &mut Model, a: Action, fx: &mut Vec<Effect>) {
                 None => m.notice = Some("no modes yet".into()),
             }
         }
+        Action::Label if matches!(m.task, Task::Walk(_)) => {
+            m.notice = Some("in a point walk the plan names the files".into());
+        }
         Action::Label => m.mode = Mode::Label(m.label.clone()),
+        Action::KeepPoint | Action::PointBack | Action::Retake | Action::NextShape => {
+            super::task::act(m, a, fx)
+        }
         Action::Save => {
             if n_hits == 0 {
                 m.notice = Some("nothing to save yet: no taps".into());
@@ -457,6 +474,9 @@ pub(super) fn act(m: &mut Model, a: Action, fx: &mut Vec<Effect>) {
             } else {
                 m.notice = Some("automatic taps: demo only".into());
             }
+        }
+        Action::NewRun if matches!(m.task, Task::Walk(_)) => {
+            m.notice = Some("in a point walk, r takes this point again".into());
         }
         Action::NewRun => {
             if m.unsaved() {
@@ -529,6 +549,8 @@ fn on_update(m: &mut Model, u: Update, fx: &mut Vec<Effect>) {
         Update::Ended(e) => {
             m.ended = Some(e.unwrap_or_else(|| "the source ended".into()));
         }
+        Update::PointKept { index, wav } => super::task::point_kept(m, index, &wav, fx),
+        Update::Shapes(r) => super::task::shapes_done(m, r),
     }
 }
 

@@ -27,6 +27,7 @@ mod serial_pty;
 mod shapes;
 mod strip;
 mod tui_screens;
+mod tui_tasks;
 mod tui_tmux;
 mod tui_update;
 mod tui_view;

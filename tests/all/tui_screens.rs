@@ -334,11 +334,11 @@ fn help_pages_explain_the_words_and_the_workflow() {
     let dir = temp_dir("tui-scr-help");
     let mut app = demo("tm9-arm-solid", 1.0, &dir);
     app.press('?');
-    assert!(app.screen(80, 24).contains("Help 1/4: keys"));
+    assert!(app.screen(80, 24).contains("Help 1/5: keys"));
     app.press('?');
     for (w, h) in SIZES {
         let s = app.screen(w, h);
-        assert!(s.contains("Help 2/4"), "{w}x{h}\n{s}");
+        assert!(s.contains("Help 2/5"), "{w}x{h}\n{s}");
         for (term, meaning) in WORDS_CURVE {
             assert!(
                 s.contains(term) && s.contains(meaning),
@@ -360,7 +360,7 @@ fn help_pages_explain_the_words_and_the_workflow() {
     app.press('?');
     for (w, h) in SIZES {
         let s = app.screen(w, h);
-        assert!(s.contains("Help 4/4"), "{w}x{h}\n{s}");
+        assert!(s.contains("Help 4/5"), "{w}x{h}\n{s}");
         for line in WORKFLOW {
             assert!(s.contains(line), "{w}x{h}: '{line}'\n{s}");
         }
@@ -369,8 +369,24 @@ fn help_pages_explain_the_words_and_the_workflow() {
             assert!(f.contains(caution), "{w}x{h}: {caution}\n{s}");
         }
     }
+    // The last page: the strip test and the point walk, with the same cautions.
+    app.press('?');
+    for (w, h) in SIZES {
+        let s = app.screen(w, h);
+        assert!(
+            s.contains("Help 5/5: strip test and point walk"),
+            "{w}x{h}\n{s}"
+        );
+        for line in tapmodes::tui::keys::TASKS {
+            assert!(s.contains(line), "{w}x{h}: '{line}'\n{s}");
+        }
+        let f = flat(&s);
+        for caution in ["propellers OFF", "DISCONNECTED", "SECURED", "local rules"] {
+            assert!(f.contains(caution), "{w}x{h}: {caution}\n{s}");
+        }
+    }
     app.key(KeyCode::Left);
-    assert_eq!(app.model.mode, Mode::Help(2));
+    assert_eq!(app.model.mode, Mode::Help(3));
     app.key(KeyCode::Right);
     app.press('?');
     assert_eq!(app.model.mode, Mode::Normal, "? on the last page closes");

@@ -9,6 +9,8 @@ use crate::run::{RunFile, RunFiles, Variant};
 use crate::signal::{Block, Roles, StreamInfo};
 use crate::source::LinkCounters;
 use crate::spectra::Basis;
+use crate::strip::compare::StripFile;
+use crate::strip::session::{self, StripSetup};
 use std::collections::VecDeque;
 use std::path::PathBuf;
 use std::sync::mpsc::Sender;
@@ -28,6 +30,8 @@ pub struct EngineSetup {
     /// Bands for the modes' verdicts and the mount's isolation (see `drive`); goes into
     /// the analysis' configuration, whose result carries the verdicts.
     pub drive: Option<crate::drive::Drive>,
+    /// Strip test: E and G in every snapshot and the strip file with every save.
+    pub strip: Option<StripSetup>,
 }
 
 struct Tail {
@@ -59,6 +63,13 @@ pub struct Engine {
     autosave_due: bool,
     /// Each tap's traces, made once (parallel to the analysis's hits).
     traces: Vec<Option<Arc<HitTraces>>>,
+    /// Point walk: a point was kept and the next not opened yet; no taps are taken and
+    /// nothing is saved.
+    parked: bool,
+    /// Point walk: the stream position where this take began. A take's analysis and
+    /// recording count from there, so each point's files stand alone like a session's
+    /// (frame 0 of the WAV is the take's first sample, with no lost stretch before it).
+    origin: u64,
 }
 
 impl Engine {
@@ -107,11 +118,18 @@ impl Engine {
             position: 0,
             autosave_due: false,
             traces: Vec::new(),
+            parked: false,
+            origin: 0,
         })
     }
 
     pub fn analysis(&self) -> &Analysis {
         &self.analysis
+    }
+
+    /// Point walk, every point recorded at the start: take no taps until a point is opened.
+    pub fn park(&mut self) {
+        self.parked = true;
     }
 
     /// Move the file side to its own thread (the app); its updates go to `out`.
@@ -148,7 +166,9 @@ impl Engine {
 
     /// Feed one block: record it, update the live view, search it for hits (when armed).
     pub fn push(&mut self, block: &Block) -> Vec<Update> {
-        let mut out = self.saver.submit(Job::Append(block.clone()));
+        // One copy, counted from the take's origin: analysed here, then recorded.
+        let mut own = block.clone();
+        own.start = block.start.saturating_sub(self.origin);
         for t in &mut self.tails {
             if let Some(ch) = block.channels.get(t.channel) {
                 for &x in ch {
@@ -160,11 +180,12 @@ impl Engine {
             }
         }
         self.position = block.start + block.len() as u64;
-        let new = if self.armed {
-            self.analysis.push(block)
+        let new = if self.armed && !self.parked {
+            self.analysis.push(&own)
         } else {
-            self.analysis.push_disarmed(block)
+            self.analysis.push_disarmed(&own)
         };
+        let mut out = self.saver.submit(Job::Append(own));
         if new > 0 {
             self.changed();
             // Every new hit is saved as it lands (see `autosave`): the WAV is flushed
@@ -275,7 +296,43 @@ impl Engine {
                     out.push(Update::Analysis(Arc::new(self.snapshot())));
                 }
             }
+            Cmd::Save if self.parked => out.push(Update::Problem(
+                "every point is kept: nothing to save (open a point again with [ or r)".into(),
+            )),
             Cmd::Save => out.extend(self.save(false)),
+            Cmd::KeepPoint {
+                index,
+                dir,
+                stem,
+                label,
+                note,
+            } => {
+                let variant = Variant {
+                    label,
+                    note: format!(
+                        "{note}; recorded with the terminal app from {}",
+                        self.setup.info.source
+                    ),
+                    mass_g: None,
+                };
+                self.keep_point(index, dir, stem, variant, &mut out)
+            }
+            Cmd::NewPoint { dir, label } => {
+                self.label = label.clone();
+                match self.fresh_analysis() {
+                    Ok(()) => {
+                        self.parked = false;
+                        self.origin = self.position;
+                        out.extend(self.saver.submit(Job::NewRecording {
+                            dir: Some(dir),
+                            label,
+                        }));
+                        self.settle_new_run();
+                        out.push(Update::Analysis(Arc::new(self.snapshot())));
+                    }
+                    Err(e) => out.push(Update::Problem(format!("cannot open the point: {e}"))),
+                }
+            }
             Cmd::Tap => {}
             Cmd::NewRun => match self.new_run(&mut out) {
                 Ok(()) => out.push(Update::Analysis(Arc::new(self.snapshot()))),
@@ -296,18 +353,84 @@ impl Engine {
     }
 
     fn new_run(&mut self, out: &mut Vec<Update>) -> Result<()> {
+        if self.parked {
+            crate::fail!("every point of the walk is kept; open a point again with [ or r");
+        }
+        self.fresh_analysis()?;
+        out.extend(self.saver.submit(Job::NewRecording {
+            dir: None,
+            label: self.label.clone(),
+        }));
+        self.settle_new_run();
+        Ok(())
+    }
+
+    /// An empty analysis with the operator's current level, estimator and view.
+    fn fresh_analysis(&mut self) -> Result<()> {
         let mut cfg = self.setup.config.clone();
         cfg.trigger.level = self.analysis.config().trigger.level;
         cfg.estimator = self.analysis.config().estimator;
         cfg.basis = self.analysis.config().basis;
         self.analysis = Analysis::new(&self.setup.info, self.setup.roles, cfg, true)?;
         self.traces.clear();
-        out.extend(self.saver.submit(Job::NewRecording(self.label.clone())));
-        // The new run has nothing to save yet.
+        self.autosave_due = false;
+        Ok(())
+    }
+
+    /// A new run has nothing to save yet.
+    fn settle_new_run(&mut self) {
         self.changed();
         let mut s = self.saved.lock().unwrap_or_else(|p| p.into_inner());
         s.written_generation = s.written_generation.max(self.generation);
-        Ok(())
+    }
+
+    /// Point walk: hand the take to the saver as point `index`'s recording, unless there
+    /// is nothing to keep or the point's files exist already (never replaced; the taps go
+    /// on). The saver confirms with `Update::PointKept`.
+    fn keep_point(
+        &mut self,
+        index: usize,
+        dir: PathBuf,
+        stem: String,
+        variant: Variant,
+        out: &mut Vec<Update>,
+    ) {
+        if self.parked {
+            out.push(Update::Problem(
+                "every point is kept: open a point again with [ or r first".into(),
+            ));
+            return;
+        }
+        if self.analysis.accepted() == 0 {
+            out.push(Update::Problem(format!(
+                "point {} has no accepted tap yet: nothing to keep",
+                index + 1
+            )));
+            return;
+        }
+        if crate::run::naming::stem_taken(&dir, &stem) {
+            out.push(Update::Problem(format!(
+                "{stem}.wav exists: never overwritten; move its files ({stem}.wav, .json, .csv in '{}') away, then ] again; the taps go on into this take",
+                dir.display()
+            )));
+            return;
+        }
+        let files = Box::new(RunFiles::of(&self.analysis, variant));
+        out.extend(self.saver.submit(Job::Keep {
+            index,
+            files,
+            generation: self.generation,
+            dir,
+            stem,
+        }));
+        self.parked = true;
+        match self.fresh_analysis() {
+            Ok(()) => {
+                self.settle_new_run();
+                out.push(Update::Analysis(Arc::new(self.snapshot())));
+            }
+            Err(e) => out.push(Update::Problem(e.to_string())),
+        }
     }
 
     /// What a save writes now (the mode search is done here, not in the saver).
@@ -328,11 +451,16 @@ impl Engine {
     pub fn save(&mut self, auto: bool) -> Vec<Update> {
         let mut out = Vec::new();
         self.last_flush = self.position;
+        if self.parked {
+            return out;
+        }
         let files = Box::new(self.run_files());
+        let strip = self.strip_file();
         out.extend(self.saver.submit(Job::Write {
             files,
             generation: self.generation,
             auto,
+            strip,
         }));
         out
     }
@@ -368,7 +496,8 @@ impl Engine {
             trigger_channel: d.trigger_config().channel,
             threshold: d.threshold(),
             traces,
-            armed: self.armed,
+            // A parked walk takes no taps: the status line says so.
+            armed: self.armed && !self.parked,
             overrun_frames: self.overrun_frames,
             link: self.link,
             unsaved: self.dirty() && !self.analysis.hits().is_empty(),
@@ -437,6 +566,12 @@ impl Engine {
                 mass_g: None,
             },
         );
+        let strip = self
+            .setup
+            .strip
+            .as_ref()
+            .filter(|_| a.accepted() > 0)
+            .map(|s| session::assess(s, &modes).map_err(|e| e.to_string()));
         AnalysisSnap {
             version: self.version,
             hits: a.hits().to_vec(),
@@ -448,6 +583,25 @@ impl Engine {
             modes,
             resolution_hz: spectra.resolution_hz,
             run,
+            strip,
         }
+    }
+
+    /// Strip test: the strip file of the current modes, when E and G can be had.
+    fn strip_file(&self) -> Option<Box<StripFile>> {
+        let setup = self.setup.strip.as_ref()?;
+        if self.analysis.accepted() == 0 {
+            return None;
+        }
+        let result = self.analysis.result();
+        let outcome = session::assess(setup, result.modes()).ok()?;
+        let recording = format!("{}.wav", self.saver_state().stem);
+        Some(Box::new(session::strip_file(
+            &self.label,
+            &recording,
+            &outcome,
+            result.modes(),
+            &result.notes,
+        )))
     }
 }

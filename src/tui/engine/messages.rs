@@ -4,8 +4,10 @@ use crate::hits::TriggerLevel;
 use crate::modes::Mode;
 use crate::pipeline::HitSummary;
 use crate::run::RunFile;
+use crate::shapes::points::ShapeFile;
 use crate::source::LinkCounters;
 use crate::spectra::{Basis, Estimator};
+use crate::strip::session::StripOutcome;
 use std::path::PathBuf;
 use std::sync::Arc;
 use std::time::Duration;
@@ -38,6 +40,21 @@ pub enum Cmd {
     Tap,
     /// Close this run's files and start a fresh analysis and recording.
     NewRun,
+    /// Point walk: make this take the recording of point `index` (`dir/stem.wav` with its
+    /// JSON and CSV), never over an existing file; then take no taps until `NewPoint`.
+    KeepPoint {
+        index: usize,
+        dir: PathBuf,
+        stem: String,
+        /// The point as the run file names it: its name, and where it sits in the plan.
+        label: String,
+        note: String,
+    },
+    /// Point walk: a fresh analysis and a new take recorded in `dir` under `label`.
+    NewPoint {
+        dir: PathBuf,
+        label: String,
+    },
     /// Close the recording after everything taken so far is analysed and every save asked
     /// for is written (the operator quit).
     Shutdown,
@@ -183,6 +200,9 @@ pub struct AnalysisSnap {
     pub resolution_hz: f64,
     /// The current state written as a run file (for comparisons).
     pub run: RunFile,
+    /// Strip test only, once a tap is accepted: E and G and which mode is which, or why
+    /// not yet (one sentence).
+    pub strip: Option<std::result::Result<StripOutcome, String>>,
 }
 
 /// Messages from the engine to the screen.
@@ -204,6 +224,13 @@ pub enum Update {
     Problem(String),
     /// The source ended (with the reason if it failed).
     Ended(Option<String>),
+    /// Point walk: the take is now point `index`'s recording.
+    PointKept {
+        index: usize,
+        wav: PathBuf,
+    },
+    /// Point walk: the shapes over all points and the file written, or why not.
+    Shapes(std::result::Result<(Arc<ShapeFile>, PathBuf), String>),
 }
 
 /// Everything the app's main loop waits on: engine updates and terminal input.

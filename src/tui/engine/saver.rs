@@ -12,6 +12,7 @@ use crate::run::naming::{claim_stem, stem_for};
 use crate::run::recording::{Encoding, RecordingWriter};
 use crate::run::{RecordingNote, RunFiles};
 use crate::signal::{Block, StreamInfo};
+use crate::strip::compare::StripFile;
 use std::path::{Path, PathBuf};
 use std::sync::mpsc::{Receiver, Sender};
 use std::sync::{Arc, Mutex};
@@ -29,6 +30,8 @@ pub(crate) enum Job {
         files: Box<RunFiles>,
         generation: u64,
         auto: bool,
+        /// Strip test: the strip file written beside the run files (`STEM.strip.json`).
+        strip: Option<Box<StripFile>>,
     },
     /// Move this run's files to a stem for the new label, then (if the JSON was written
     /// before) write `files` so the JSON names the moved WAV.
@@ -37,8 +40,23 @@ pub(crate) enum Job {
         files: Box<RunFiles>,
         generation: u64,
     },
-    /// Close this run's recording and start the next one under a stem for `label`.
-    NewRecording(String),
+    /// Close this run's recording and start the next one under a stem for `label`, in
+    /// `dir` when given (a point walk's next point), else in the same folder.
+    NewRecording {
+        dir: Option<PathBuf>,
+        label: String,
+    },
+    /// Point walk: write this take's files once more, close its recording and make it
+    /// point `index`'s recording `dir/stem.wav` (+ JSON and CSV) without replacing any
+    /// file; the take's own files are removed only after that worked. Then nothing is
+    /// recorded or written until the next `NewRecording`.
+    Keep {
+        index: usize,
+        files: Box<RunFiles>,
+        generation: u64,
+        dir: PathBuf,
+        stem: String,
+    },
     /// Close the recording (valid WAV with its final header).
     Finish,
 }
@@ -64,6 +82,8 @@ pub(crate) struct SaverCore {
     /// is kept whatever happens).
     asked_to_write: bool,
     state: Arc<Mutex<SaverState>>,
+    /// A point was kept and the next take not started: nothing is written.
+    parked: bool,
     /// Tests: how long each run-file write takes at least (a slow disk).
     #[cfg(test)]
     pub(crate) slow_writes: Option<std::time::Duration>,
@@ -84,6 +104,7 @@ impl SaverCore {
             recorder: Some(recorder),
             wrote_json: false,
             asked_to_write: false,
+            parked: false,
             state,
             #[cfg(test)]
             slow_writes: None,
@@ -121,13 +142,33 @@ impl SaverCore {
                 }
             }
             Job::Flush => self.flush(&mut out),
+            Job::Write { .. } | Job::Rename { .. } if self.parked => {}
             Job::Write {
                 files,
                 generation,
                 auto,
+                strip,
             } => {
                 self.asked_to_write = true;
                 if self.write(*files, auto, generation, &mut out) {
+                    written = Some(generation);
+                    if let Some(strip) = strip {
+                        let path = self.path("strip.json");
+                        if let Err(e) = strip.save(&path) {
+                            out.push(Update::Problem(format!("strip file not written: {e}")));
+                        }
+                    }
+                }
+            }
+            Job::Keep {
+                index,
+                files,
+                generation,
+                dir,
+                stem,
+            } => {
+                self.asked_to_write = true;
+                if self.keep(index, *files, generation, &dir, &stem, &mut out) {
                     written = Some(generation);
                 }
             }
@@ -143,16 +184,19 @@ impl SaverCore {
                     written = Some(generation);
                 }
             }
-            Job::NewRecording(label) => {
+            Job::NewRecording { dir, label } => {
                 if let Err(e) = self.finish(&mut out) {
                     out.push(Update::Problem(format!("cannot start a new run: {e}")));
                 } else {
-                    match RecordingWriter::create_fresh(&self.out_dir, &label, &self.info) {
+                    let dir = dir.unwrap_or_else(|| self.out_dir.clone());
+                    match RecordingWriter::create_fresh(&dir, &label, &self.info) {
                         Ok((recorder, stem)) => {
                             self.recorder = Some(recorder);
+                            self.out_dir = dir;
                             self.stem = stem;
                             self.wrote_json = false;
                             self.asked_to_write = false;
+                            self.parked = false;
                         }
                         Err(e) => out.push(Update::Problem(format!("cannot start a new run: {e}"))),
                     }
@@ -223,6 +267,104 @@ impl SaverCore {
         }
     }
 
+    /// The take becomes point `index`'s recording (see `Job::Keep`); true when the point's
+    /// files are written. On any failure the take's files stay as they are and say so.
+    fn keep(
+        &mut self,
+        index: usize,
+        files: RunFiles,
+        generation: u64,
+        dir: &Path,
+        stem: &str,
+        out: &mut Vec<Update>,
+    ) -> bool {
+        // The take's own files first: whatever happens next, they hold every tap.
+        if !self.write(files.clone(), true, generation, out) {
+            return false;
+        }
+        let encoding = self
+            .recorder
+            .as_ref()
+            .map_or(NO_RECORDER_ENCODING, |r| r.encoding());
+        let gaps = self
+            .recorder
+            .as_ref()
+            .map_or_else(Vec::new, |r| r.gaps().to_vec());
+        if let Some(r) = self.recorder.take()
+            && let Err(e) = r.finish()
+        {
+            out.push(Update::Problem(format!(
+                "cannot close the recording '{}': {e}; the point is not kept",
+                self.path("wav").display()
+            )));
+            return false;
+        }
+        // From here nothing more goes into this take.
+        self.parked = true;
+        let take_wav = self.path("wav");
+        let wav = dir.join(format!("{stem}.wav"));
+        let json = dir.join(format!("{stem}.json"));
+        let kept = |out: &mut Vec<Update>, why: String| {
+            out.push(Update::Problem(format!(
+                "{why}; the taps stay in '{}' (+ .json): take the point again after moving the old files away",
+                take_wav.display()
+            )));
+            false
+        };
+        if crate::run::naming::stem_taken(dir, stem) {
+            return kept(
+                out,
+                format!(
+                    "'{}' exists already and is never overwritten",
+                    wav.display()
+                ),
+            );
+        }
+        // A hard link claims the name exclusively; where links are not possible, an
+        // exclusive copy.
+        if let Err(e) = std::fs::hard_link(&take_wav, &wav) {
+            if e.kind() == std::io::ErrorKind::AlreadyExists {
+                return kept(
+                    out,
+                    format!(
+                        "'{}' exists already and is never overwritten",
+                        wav.display()
+                    ),
+                );
+            }
+            let copied = std::fs::OpenOptions::new()
+                .write(true)
+                .create_new(true)
+                .open(&wav)
+                .and_then(|mut to| {
+                    std::io::copy(&mut std::fs::File::open(&take_wav)?, &mut to)?;
+                    to.sync_all()
+                });
+            if let Err(e) = copied {
+                if e.kind() != std::io::ErrorKind::AlreadyExists {
+                    let _ = std::fs::remove_file(&wav);
+                }
+                return kept(out, format!("cannot write '{}': {e}", wav.display()));
+            }
+        }
+        let note = RecordingNote {
+            wav: &wav,
+            encoding,
+            gaps: &gaps,
+        };
+        if let Err(e) = files.write(&json, Some(note)) {
+            let _ = std::fs::remove_file(&wav);
+            return kept(out, format!("cannot write '{}': {e}", json.display()));
+        }
+        for ext in ["wav", "json", "csv"] {
+            let _ = std::fs::remove_file(self.path(ext));
+        }
+        self.out_dir = dir.to_path_buf();
+        self.stem = stem.to_string();
+        out.push(Update::PointKept { index, wav });
+        true
+    }
+
     /// Move this run's files to the first free stem for `label` (claimed exclusively);
     /// true when the files now carry the new stem.
     fn rename(&mut self, label: &str, out: &mut Vec<Update>) -> bool {
@@ -239,7 +381,7 @@ impl SaverCore {
             }
         };
         let new = |ext: &str| self.out_dir.join(format!("{stem}.{ext}"));
-        for ext in ["wav", "json", "csv"] {
+        for ext in ["wav", "json", "csv", "strip.json"] {
             let from = self.path(ext);
             let ours = ext == "wav" || self.wrote_json;
             if ours && from.exists() {

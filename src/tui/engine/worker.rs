@@ -205,6 +205,7 @@ mod tests {
             out_dir: dir.clone(),
             label: "slow".into(),
             drive: None,
+            strip: None,
         })
         .unwrap();
         engine.slow_saves(SLOW);

@@ -9,15 +9,18 @@ mod plot;
 mod signal;
 mod status;
 mod tables;
+mod task_view;
 
 use crate::hits::Verdict;
 use crate::tui::model::{Mode, Model, Panel};
+use crate::tui::task::Task;
 pub use plot::{CurvePlot, decimate};
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout};
 use ratatui::style::{Color, Modifier, Style};
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Block, Borders, Paragraph, Wrap};
+pub use task_view::signed_bar;
 
 /// Smallest usable screen.
 pub const MIN_SIZE: (u16, u16) = (60, 16);
@@ -106,6 +109,15 @@ pub fn view(m: &Model, f: &mut Frame) {
     .areas(area);
     status::draw_status(m, f, status);
     status::draw_hints(m, f, hints);
+    // A strip test or a point walk says what to tap on a line of its own.
+    let body = if matches!(m.task, Task::Free) {
+        body
+    } else {
+        let [line, rest] =
+            Layout::vertical([Constraint::Length(1), Constraint::Min(6)]).areas(body);
+        task_view::draw_task_line(m, f, line);
+        rest
+    };
 
     let large = area.height >= 34;
     let bottom_h = if large {
@@ -122,8 +134,22 @@ pub fn view(m: &Model, f: &mut Frame) {
         Layout::vertical([Constraint::Percentage(45), Constraint::Percentage(55)]).areas(left);
     signal::draw_signal(m, f, sig);
     signal::draw_last_tap(m, f, last);
-    plot::draw_curve(m, f, right);
-
+    // A walk whose points are all recorded shows the shapes where the curve was.
+    let walk = match &m.task {
+        Task::Walk(w) => Some(w),
+        _ => None,
+    };
+    match walk {
+        Some(w) if w.complete => task_view::draw_shapes(w, f, right),
+        _ => plot::draw_curve(m, f, right),
+    }
+    // Strip test: E and G take the comparison's place (the modes' on narrow screens).
+    // Point walk: the points, then the shapes' table.
+    let task_panel = |f: &mut Frame, r| match &m.task {
+        Task::Strip(_) => task_view::draw_strip(m, f, r),
+        Task::Walk(w) => task_view::draw_shape_table(w, f, r),
+        Task::Free => tables::draw_compare(m, f, r),
+    };
     if area.width >= 140 {
         let [taps, modes, cmp] = Layout::horizontal([
             Constraint::Percentage(30),
@@ -133,14 +159,17 @@ pub fn view(m: &Model, f: &mut Frame) {
         .areas(bottom);
         tables::draw_taps(m, f, taps);
         tables::draw_modes(m, f, modes);
-        tables::draw_compare(m, f, cmp);
+        task_panel(f, cmp);
     } else {
         let [taps, rest] =
             Layout::horizontal([Constraint::Length(left_w), Constraint::Min(20)]).areas(bottom);
         tables::draw_taps(m, f, taps);
-        match m.panel {
-            Panel::Modes => tables::draw_modes(m, f, rest),
-            Panel::Compare => tables::draw_compare(m, f, rest),
+        match (&m.task, m.panel) {
+            (Task::Strip(_), Panel::Modes) => task_panel(f, rest),
+            (Task::Walk(w), Panel::Modes) if w.complete => task_panel(f, rest),
+            (Task::Walk(_), Panel::Compare) => task_panel(f, rest),
+            (_, Panel::Modes) => tables::draw_modes(m, f, rest),
+            (_, Panel::Compare) => tables::draw_compare(m, f, rest),
         }
     }
 
@@ -161,6 +190,19 @@ pub fn view(m: &Model, f: &mut Frame) {
                 "Esc  stay",
             ],
         ),
+        Mode::ConfirmLeave { to } => {
+            let lines = [
+                "This point's take has taps. They stay on disk in".to_string(),
+                format!(
+                    "'{}.wav' but are not the point's recording.",
+                    m.live.as_ref().map_or("the take", |l| l.stem.as_str())
+                ),
+                format!("y  go to point {}", to + 1),
+                "Esc  stay".to_string(),
+            ];
+            let refs: Vec<&str> = lines.iter().map(String::as_str).collect();
+            overlays::draw_confirm(f, area, "Leave this point?", &refs)
+        }
         Mode::ConfirmNewRun => overlays::draw_confirm(
             f,
             area,

@@ -1,7 +1,7 @@
 //! Boxes drawn over the board: help, label entry, run picker, confirmations.
 
 use super::*;
-use crate::tui::keys::{WORDS_BOARD, WORDS_CURVE, WORKFLOW};
+use crate::tui::keys::{TASKS, WORDS_BOARD, WORDS_CURVE, WORKFLOW};
 use crate::tui::model::{KEYS, Model, SAFETY};
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
@@ -26,6 +26,7 @@ const HELP_TITLES: [&str; crate::tui::keys::HELP_PAGES] = [
     "words on the curve and modes",
     "words on the status line, taps, comparison",
     "how a bench session goes",
+    "strip test and point walk",
 ];
 
 pub(super) fn draw_help(m: &Model, page: usize, f: &mut Frame, area: Rect) {
@@ -62,8 +63,12 @@ pub(super) fn draw_help(m: &Model, page: usize, f: &mut Frame, area: Rect) {
         0 => draw_key_columns(m, f, top),
         1 => draw_words(WORDS_CURVE, f, top),
         2 => draw_words(WORDS_BOARD, f, top),
-        _ => {
+        3 => {
             let lines: Vec<Line> = WORKFLOW.iter().map(|l| Line::from(*l)).collect();
+            f.render_widget(Paragraph::new(lines), top);
+        }
+        _ => {
+            let lines: Vec<Line> = TASKS.iter().map(|l| Line::from(*l)).collect();
             f.render_widget(Paragraph::new(lines), top);
         }
     }

@@ -137,7 +137,33 @@ pub(super) fn draw_hints(m: &Model, f: &mut Frame, area: Rect) {
         ))
     } else {
         // Most useful first; as many as fit.
-        let keys: &[(&str, &str)] = if m.header.demo {
+        let walk = match &m.task {
+            crate::tui::task::Task::Walk(w) => Some(w.complete),
+            _ => None,
+        };
+        let keys: &[(&str, &str)] = if walk == Some(true) {
+            &[("b", "next shape"), ("[", "back"), ("r", "point again")]
+        } else if walk == Some(false) {
+            if m.header.demo {
+                &[
+                    ("Space", "tap"),
+                    ("]", "keep point"),
+                    ("[", "back"),
+                    ("r", "again"),
+                    ("y/x", "keep/drop"),
+                    ("Enter", "read tap"),
+                ]
+            } else {
+                &[
+                    ("]", "keep point"),
+                    ("[", "back"),
+                    ("r", "again"),
+                    ("y/x", "keep/drop"),
+                    ("Enter", "read tap"),
+                    ("a", "arm"),
+                ]
+            }
+        } else if m.header.demo {
             &[
                 ("Space", "tap"),
                 ("y/x", "keep/drop"),
