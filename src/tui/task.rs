@@ -372,7 +372,10 @@ mod tests {
             ),
             ("a | z | p1.txt\nb | z | p2.wav\n", "must end in .wav"),
             ("a | z | point 1.wav\nb | z | p2.wav\n", "try 'point_1.wav'"),
-            ("a | z | p1.wav\nb | z | p1.wav\n", "both name 'p1.wav'"),
+            (
+                "a | z | p1.wav\nb | z | p1.wav\n",
+                "name the same recording 'p1.wav'",
+            ),
         ] {
             let e = Walk::load(&plan(&dir, text)).unwrap_err().to_string();
             assert!(e.contains(says), "{text:?}: {e}");
