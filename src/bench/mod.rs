@@ -249,15 +249,22 @@ fn phases(path: &std::path::Path) -> Result<Phases> {
     })
 }
 
+/// The generated recordings go in a scratch folder and are removed afterwards; with
+/// `TAPMODES_BENCH_KEEP=DIR` they are written to DIR and kept (for profiling one of them).
 fn speed(quick: bool) -> Result<String> {
+    if let Some(keep) = std::env::var_os("TAPMODES_BENCH_KEEP") {
+        let dir = std::path::PathBuf::from(keep);
+        std::fs::create_dir_all(&dir)?;
+        return speed_in(&dir, quick, true);
+    }
     let dir = std::env::temp_dir().join(format!("tapmodes-bench-{}", std::process::id()));
     std::fs::create_dir_all(&dir)?;
-    let done = speed_in(&dir, quick);
+    let done = speed_in(&dir, quick, false);
     let _ = std::fs::remove_dir_all(&dir);
     done
 }
 
-fn speed_in(dir: &std::path::Path, quick: bool) -> Result<String> {
+fn speed_in(dir: &std::path::Path, quick: bool, keep: bool) -> Result<String> {
     // (minutes, float): 48 kHz stereo, about 40 taps a minute.
     let files: &[(f64, bool)] = if quick {
         &[(0.25, true), (1.0, true)]
@@ -327,7 +334,9 @@ fn speed_in(dir: &std::path::Path, quick: bool) -> Result<String> {
             last.ffts,
             last.n_fft
         );
-        let _ = std::fs::remove_file(&path);
+        if !keep {
+            let _ = std::fs::remove_file(&path);
+        }
         let _ = std::fs::remove_file(&json);
         let _ = std::fs::remove_file(json.with_extension("csv"));
     }
