@@ -154,11 +154,13 @@ impl<'a> Reading<'a> {
             };
             // Peaks where the output is mostly noise (coherence under the chance level for
             // this many averages) are noise, not modes.
-            // And a mode stands about 10 dB over the noise at its own peak: there the
-            // coherence, SNR / (1 + SNR), is at least LOW_COHERENCE (0.9 for 9.5 dB). Over
-            // the thousands of lines of a band, coherence above chance alone lets a few
-            // noise peaks through (one line in a thousand by design).
-            let needed = LOW_COHERENCE.max(noise_coherence(cfg.averages));
+            // A weak peak (under the prominence asked of curves without coherence) needs a
+            // coherence that vouches for it, not only one above chance.
+            let needed = if p.prominence_db < cfg.min_prominence_db {
+                LOW_COHERENCE.max(noise_coherence(cfg.averages))
+            } else {
+                noise_coherence(cfg.averages)
+            };
             if coherent
                 && curve
                     .coherence
