@@ -2,7 +2,7 @@
 //!
 //! Every case is a simulated bench (exact modal simulator, half-sine taps, white sensor
 //! noise) run through the public pipeline exactly as `analyze` runs a recording
-//! (`pipeline::analyse_source`, `Analysis::search`): trigger and checks, windows, averaged
+//! (`pipeline::analyse_source`, then `Analysis::result()`): trigger and checks, windows, averaged
 //! H1, the mode search with its tests. Each case is repeated over seeds; for each method the median and 95th
 //! percentile of the relative errors of frequency and damping are reported, beside the
 //! Cramer-Rao bound of the frequency.
