@@ -234,14 +234,7 @@ impl SaverCore {
         }
         self.flush(out);
         let (json, wav) = (self.path("json"), self.path("wav"));
-        let encoding = self
-            .recorder
-            .as_ref()
-            .map_or(NO_RECORDER_ENCODING, |r| r.encoding());
-        let gaps = self
-            .recorder
-            .as_ref()
-            .map_or_else(Vec::new, |r| r.gaps().to_vec());
+        let (encoding, gaps) = self.recording_form();
         let note = RecordingNote {
             wav: &wav,
             encoding,
@@ -267,6 +260,14 @@ impl SaverCore {
         }
     }
 
+    /// How the open recording holds its samples, and the stretches lost before it.
+    fn recording_form(&self) -> (crate::run::recording::Encoding, Vec<(u64, u64)>) {
+        self.recorder.as_ref().map_or_else(
+            || (NO_RECORDER_ENCODING, Vec::new()),
+            |r| (r.encoding(), r.gaps().to_vec()),
+        )
+    }
+
     /// The take becomes point `index`'s recording (see `Job::Keep`); true when the point's
     /// files are written. On any failure the take's files stay as they are and say so.
     fn keep(
@@ -282,14 +283,7 @@ impl SaverCore {
         if !self.write(files.clone(), true, generation, out) {
             return false;
         }
-        let encoding = self
-            .recorder
-            .as_ref()
-            .map_or(NO_RECORDER_ENCODING, |r| r.encoding());
-        let gaps = self
-            .recorder
-            .as_ref()
-            .map_or_else(Vec::new, |r| r.gaps().to_vec());
+        let (encoding, gaps) = self.recording_form();
         if let Some(r) = self.recorder.take()
             && let Err(e) = r.finish()
         {
