@@ -161,7 +161,7 @@ mod tests {
         assert_eq!(direction_vector("Z"), Some([0.0, 0.0, 1.0]));
         assert_eq!(direction_vector("-x"), Some([-1.0, 0.0, 0.0]));
         assert_eq!(direction_vector("radial"), None);
-        // z goes straight up; x and y go up-right and up-left by the same 30 degrees.
+        // z goes straight up; the x axis goes up-right, the y axis up-left, both at 30 degrees.
         assert_eq!(project([0.0, 0.0, 2.0]), (0.0, 2.0));
         let (ux, vx) = project([1.0, 0.0, 0.0]);
         let (uy, vy) = project([0.0, 1.0, 0.0]);
