@@ -8,7 +8,7 @@
 //! (from the averaged FRF) normally lies close to it. It describes the scatter between taps
 //! (noise, tap-to-tap variation); a bias common to every hit is not in it.
 
-use super::fit::{FitBudget, FitConfig, Seed, complex_curve, fit_band_within, fitted_mode};
+use super::fit::{FitBudget, FitConfig, Seed, fit_band_within, fitted_mode};
 use super::{Mode, halfpower};
 use crate::spectra::{Basis, Curve, HitSpectra, SpectralAverager, remove_window_damping};
 use serde::{Deserialize, Serialize};
@@ -138,7 +138,13 @@ fn estimate_hit(
     cfg: &FitConfig,
 ) -> Vec<HitEstimate> {
     let mut out = vec![None; modes.len()];
-    let h = complex_curve(curve);
+    // The refits read only their bands' lines: the complex curve is made there alone (the
+    // same values; zero elsewhere), which spares a sine and cosine on every other line.
+    let bands: Vec<(f64, f64)> = (modes.iter())
+        .filter(|m| m.method == "fit")
+        .filter_map(|m| m.fit.as_ref().map(|f| f.band_hz))
+        .collect();
+    let h = complex_curve_within(curve, freqs, &bands);
     // Each hit's refits get the budget of one mode search.
     let budget = FitBudget::standard();
     // Fitted modes: refit each band of the averaged fit, seeded by the averaged poles.
@@ -191,6 +197,9 @@ fn estimate_hit(
         }
     }
     // Half-power modes: the local maximum nearest the mode, refined, then its band.
+    if modes.iter().all(|m| m.method == "fit") {
+        return out;
+    }
     let db: Vec<f64> = curve
         .magnitude
         .iter()
@@ -296,6 +305,28 @@ pub fn damping_difference_significant(a: &Mode, b: &Mode) -> Option<bool> {
         ub.damping_ratio.as_ref()?,
         ub.hits,
     )
+}
+
+/// `complex_curve` on the lines inside `bands` only (zero elsewhere); `None` without phase.
+fn complex_curve_within(
+    curve: &Curve,
+    freqs: &[f64],
+    bands: &[(f64, f64)],
+) -> Option<Vec<realfft::num_complex::Complex64>> {
+    use realfft::num_complex::Complex64;
+    let ph = curve.phase_deg.as_ref()?;
+    let mut h = vec![Complex64::new(0.0, 0.0); curve.magnitude.len()];
+    for &(lo, hi) in bands {
+        let a = freqs.partition_point(|&f| f < lo);
+        let b = freqs
+            .partition_point(|&f| f <= hi)
+            .min(h.len())
+            .min(ph.len());
+        for k in a..b {
+            h[k] = Complex64::from_polar(curve.magnitude[k], ph[k].to_radians());
+        }
+    }
+    Some(h)
 }
 
 #[cfg(test)]
