@@ -139,8 +139,10 @@ impl Analysis {
             band_hz: self.band(spectra, &mut notes),
             ..self.cfg.modes.clone()
         };
+        // The kept taps' transforms, made once for the alignment and the per-hit curves.
+        let hit_spectra = self.accepted_hit_spectra();
         let aligned = (basis == Basis::Autospectrum)
-            .then(|| self.aligned_taps(spectra, cfg.band_hz))
+            .then(|| self.aligned_taps(spectra, &hit_spectra, cfg.band_hz))
             .flatten();
         let ctx = SearchContext {
             background: (spectra.background_records > 0)
@@ -171,7 +173,6 @@ impl Analysis {
         let modes = &mut found.modes;
         let records = self.accepted_records();
         if records.len() >= 2 {
-            let hit_spectra = self.accepted_hit_spectra();
             let mut curves =
                 crate::modes::uncertainty::hit_curves(&self.averager, &hit_spectra, basis);
             if basis == Basis::Autospectrum {
@@ -215,9 +216,9 @@ impl Analysis {
     fn aligned_taps(
         &self,
         spectra: &Spectra,
+        hits: &[std::borrow::Cow<'_, crate::spectra::HitSpectra>],
         band: (f64, f64),
     ) -> Option<super::align::AlignedTaps> {
-        let hits = self.accepted_hit_spectra();
         let taps: Vec<&[realfft::num_complex::Complex64]> =
             hits.iter().map(|h| &h.response[..]).collect();
         super::align::align(&spectra.freqs, &taps, self.trigger_time(), band)

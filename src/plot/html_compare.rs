@@ -99,11 +99,7 @@ pub fn comparison_table(c: &Comparison) -> String {
             .and_then(|b| b.variants.iter().find(|x| x.label == v.label));
         for m in &v.matched {
             let band = bands
-                .and_then(|b| {
-                    b.changes.iter().find(|x| {
-                        x.baseline_mode == m.baseline_mode && x.variant_mode == m.variant_mode
-                    })
-                })
+                .and_then(|b| b.change_of(m))
                 .map_or("-".into(), band_text);
             let cells = vec![
                 v.label.clone(),

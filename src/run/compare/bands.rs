@@ -79,6 +79,15 @@ pub struct BandComparison {
     pub warnings: Vec<String>,
 }
 
+impl VariantBands {
+    /// The band change of the pair `m` (its baseline and variant mode numbers).
+    pub fn change_of(&self, m: &super::MatchedMode) -> Option<&BandChange> {
+        self.changes
+            .iter()
+            .find(|x| x.baseline_mode == m.baseline_mode && x.variant_mode == m.variant_mode)
+    }
+}
+
 /// The drive to judge with: the given one, else the first run's that has one.
 fn choose(runs: &[(String, RunFile)], given: Option<&Drive>) -> Result<Option<(Drive, String)>> {
     if let Some(d) = given {

@@ -87,11 +87,7 @@ pub fn render_csv(c: &Comparison) -> Result<String> {
             .as_ref()
             .and_then(|b| b.variants.iter().find(|x| x.label == v.label));
         for m in &v.matched {
-            let change = bands.and_then(|b| {
-                b.changes.iter().find(|x| {
-                    x.baseline_mode == m.baseline_mode && x.variant_mode == m.variant_mode
-                })
-            });
+            let change = bands.and_then(|b| b.change_of(m));
             put(
                 &mut w,
                 vec![
