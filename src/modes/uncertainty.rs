@@ -10,7 +10,7 @@
 
 use super::fit::{FitBudget, FitConfig, Seed, fit_band_within, fitted_mode};
 use super::{Mode, halfpower};
-use crate::spectra::{Basis, Curve, HitSpectra, SpectralAverager, remove_window_damping};
+use crate::spectra::{Basis, Curve, HitSpectra, LineSet, SpectralAverager, remove_window_damping};
 use serde::{Deserialize, Serialize};
 use std::f64::consts::PI;
 
@@ -111,18 +111,51 @@ pub fn interval(values: &[f64]) -> Option<Interval> {
     })
 }
 
+/// The lines the per-hit estimators of `modes` read (see `estimate_hit`): each fitted
+/// band's lines, and the magnitude everywhere when a mode is read at half power.
+pub fn hit_lines(modes: &[Mode], freqs: &[f64]) -> LineSet {
+    let ranges = fitted_bands(modes)
+        .into_iter()
+        .map(|band| band_lines(freqs, band))
+        .filter(|r| !r.is_empty())
+        .collect();
+    LineSet {
+        ranges,
+        magnitude_everywhere: modes.iter().any(|m| m.method != "fit"),
+    }
+}
+
+/// The bands of the modes read by the band fit.
+fn fitted_bands(modes: &[Mode]) -> Vec<(f64, f64)> {
+    (modes.iter())
+        .filter(|m| m.method == "fit")
+        .filter_map(|m| m.fit.as_ref().map(|f| f.band_hz))
+        .collect()
+}
+
+/// The lines of `freqs` in `lo..=hi` Hz.
+fn band_lines(freqs: &[f64], (lo, hi): (f64, f64)) -> std::ops::Range<usize> {
+    let a = freqs.partition_point(|&f| f < lo);
+    let b = freqs.partition_point(|&f| f <= hi);
+    a..b.max(a)
+}
+
 /// Per-hit curves from accepted hits' transforms (made once by the run's averager, see
 /// `SpectralAverager::transform`), each read on `basis` as an averager of that one hit
-/// would; on all cores. Coherence of a single hit is 1 and carries no information.
+/// would, on the lines `lines` only (`hit_lines`; zero elsewhere); on all cores.
+/// Coherence of a single hit is 1 and carries no information, so none is made.
 pub fn hit_curves<H: AsRef<HitSpectra> + Sync>(
     averager: &SpectralAverager,
     hits: &[H],
     basis: Basis,
+    lines: &LineSet,
 ) -> Vec<Curve> {
-    crate::parallel::map(hits, |hs| averager.single(hs.as_ref()).curve(basis))
-        .into_iter()
-        .flatten()
-        .collect()
+    crate::parallel::map(hits, |hs| {
+        averager.single_curve_on(hs.as_ref(), basis, lines)
+    })
+    .into_iter()
+    .flatten()
+    .collect()
 }
 
 /// One hit's (frequency, damping) of one mode, `None` where the estimator failed.
@@ -140,11 +173,7 @@ fn estimate_hit(
     let mut out = vec![None; modes.len()];
     // The refits read only their bands' lines: the complex curve is made there alone (the
     // same values; zero elsewhere), which spares a sine and cosine on every other line.
-    let bands: Vec<(f64, f64)> = (modes.iter())
-        .filter(|m| m.method == "fit")
-        .filter_map(|m| m.fit.as_ref().map(|f| f.band_hz))
-        .collect();
-    let h = complex_curve_within(curve, freqs, &bands);
+    let h = complex_curve_within(curve, freqs, &fitted_bands(modes));
     // Each hit's refits get the budget of one mode search.
     let budget = FitBudget::standard();
     // Fitted modes: refit each band of the averaged fit, seeded by the averaged poles.
@@ -316,13 +345,10 @@ fn complex_curve_within(
     use realfft::num_complex::Complex64;
     let ph = curve.phase_deg.as_ref()?;
     let mut h = vec![Complex64::new(0.0, 0.0); curve.magnitude.len()];
-    for &(lo, hi) in bands {
-        let a = freqs.partition_point(|&f| f < lo);
-        let b = freqs
-            .partition_point(|&f| f <= hi)
-            .min(h.len())
-            .min(ph.len());
-        for k in a..b {
+    for &band in bands {
+        let r = band_lines(freqs, band);
+        let b = r.end.min(h.len()).min(ph.len());
+        for k in r.start..b {
             h[k] = Complex64::from_polar(curve.magnitude[k], ph[k].to_radians());
         }
     }

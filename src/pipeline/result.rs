@@ -173,18 +173,21 @@ impl Analysis {
         let modes = &mut found.modes;
         let records = self.accepted_records();
         if records.len() >= 2 {
-            let mut curves =
-                crate::modes::uncertainty::hit_curves(&self.averager, &hit_spectra, basis);
+            use crate::modes::uncertainty::{hit_curves, hit_lines};
+            let lines = hit_lines(modes, &spectra.freqs);
+            let mut curves = hit_curves(&self.averager, &hit_spectra, basis, &lines);
             if basis == Basis::Autospectrum {
                 // Each tap's phase about its trigger, so modes the band fit read on the mean
                 // complex spectrum are refitted tap by tap like an FRF's.
                 let turn = super::align::turn_to(&spectra.freqs, self.trigger_time());
                 for (c, h) in curves.iter_mut().zip(&hit_spectra) {
-                    c.phase_deg = Some(
-                        (h.response.iter().zip(&turn))
-                            .map(|(x, r)| (x * r).arg().to_degrees())
-                            .collect(),
-                    );
+                    let mut phase = vec![0.0; c.magnitude.len()];
+                    for r in &lines.ranges {
+                        for k in r.clone() {
+                            phase[k] = (h.response[k] * turn[k]).arg().to_degrees();
+                        }
+                    }
+                    c.phase_deg = Some(phase);
                 }
             }
             crate::modes::uncertainty::attach(

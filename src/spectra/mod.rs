@@ -1,6 +1,7 @@
 //! Spectral stage: windows, FFT, averaging over hits, and the estimators read from it.
 
 pub mod averager;
+mod single;
 pub(crate) mod window;
 
 use crate::signal::Roles;
@@ -8,6 +9,7 @@ pub use averager::Transformer;
 use averager::{CrossAccumulator, Scaling, Spread, line_factors};
 use realfft::num_complex::Complex64;
 use serde::{Deserialize, Serialize};
+pub use single::LineSet;
 pub use window::{WindowConfig, Windows, remove_window_damping};
 
 /// Which FRF estimator to read.
@@ -375,38 +377,6 @@ impl SpectralAverager {
             );
         }
         self.count += 1;
-    }
-
-    /// The spectra of one hit alone: what a fresh averager of the same settings gives
-    /// after adding only this hit (no background, no spread), without redoing its FFTs.
-    pub fn single(&self, hs: &HitSpectra) -> Spectra {
-        let lines = self.fft.lines();
-        let one = |a: &[Complex64], b: &[Complex64]| {
-            let mut acc = CrossAccumulator::new(lines);
-            acc.add(a, b);
-            acc.averaged(&self.factors)
-        };
-        let rx = &hs.response;
-        Spectra {
-            freqs: self.freqs(),
-            resolution_hz: self.fs / self.record_len as f64,
-            hits: 1,
-            tau_s: self.windows.tau_s,
-            force_response: (hs.force.as_ref())
-                .filter(|_| self.force_response.is_some())
-                .map(|fx| one(fx, rx)),
-            base_response: (hs.base.as_ref())
-                .filter(|_| self.base_response.is_some())
-                .map(|bx| one(bx, rx)),
-            response_esd: (rx.iter().zip(&self.factors))
-                .map(|(x, c)| x.norm_sqr() * c)
-                .collect(),
-            background_esd: Vec::new(),
-            background_records: 0,
-            spread_db: vec![0.0; lines],
-            force_unit: self.units.0.clone(),
-            response_unit: self.units.1.clone(),
-        }
     }
 
     fn freqs(&self) -> Vec<f64> {
