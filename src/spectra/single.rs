@@ -24,7 +24,7 @@ impl SpectralAverager {
     pub fn single_curve_on(&self, hs: &HitSpectra, basis: Basis, lines: &LineSet) -> Option<Curve> {
         let n = self.fft.lines();
         let rx = &hs.response;
-        let all = [0..n];
+        let all = std::slice::from_ref(&(0..n)).to_vec();
         let mag_ranges: &[Range<usize>] = if lines.magnitude_everywhere {
             &all
         } else {
