@@ -22,6 +22,7 @@ mod hostile_runs;
 mod hostile_serial;
 mod hostile_wavs;
 mod independent_recordings;
+mod plot_commands;
 mod plot_pictures;
 mod serial_pty;
 mod shapes;
