@@ -43,12 +43,16 @@ pub fn mode_table(modes: &[Mode]) -> String {
         );
     }
     if !modes.is_empty() {
-        s += "    damp: damping ratio; Q = 1 / (2 damp); coh: coherence at the peak (- with one\n";
-        s +=
-            "    hit); prom: dB the peak stands above its surroundings; +-f, +-d: half-widths of\n";
-        s += "    the 95 % intervals from the hit-to-hit spread (damping in percentage points);\n";
-        s += "    from: band fit (several modes fitted together), spectrum (fit of the response\n";
-        s += "    spectrum) or half-pwr (peak and half-power band).\n";
+        for line in [
+            "damp: damping ratio; Q = 1 / (2 damp); coh: coherence at the peak (- with one",
+            "hit, or read from the response alone); prom: dB the peak stands above its",
+            "surroundings; +-f, +-d: half-widths of the 95 % intervals from the hit-to-hit",
+            "spread (damping in percentage points); from: band fit (several modes fitted",
+            "together), spectrum (fit of the response spectrum) or half-pwr (peak and",
+            "half-power band).",
+        ] {
+            s += &format!("    {line}\n");
+        }
     }
     s
 }
