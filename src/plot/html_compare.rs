@@ -93,10 +93,7 @@ pub fn comparison_table(c: &Comparison) -> String {
         v
     };
     for v in &c.variants {
-        let bands = c
-            .bands
-            .as_ref()
-            .and_then(|b| b.variants.iter().find(|x| x.label == v.label));
+        let bands = c.bands.as_ref().and_then(|b| b.of_variant(&v.label));
         for m in &v.matched {
             let band = bands
                 .and_then(|b| b.change_of(m))

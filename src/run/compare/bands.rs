@@ -79,6 +79,13 @@ pub struct BandComparison {
     pub warnings: Vec<String>,
 }
 
+impl BandComparison {
+    /// The band changes of the variant labelled `label`.
+    pub fn of_variant(&self, label: &str) -> Option<&VariantBands> {
+        self.variants.iter().find(|x| x.label == label)
+    }
+}
+
 impl VariantBands {
     /// The band change of the pair `m` (its baseline and variant mode numbers).
     pub fn change_of(&self, m: &super::MatchedMode) -> Option<&BandChange> {

@@ -82,10 +82,7 @@ pub fn render_csv(c: &Comparison) -> Result<String> {
     w.write_record(&head).map_err(enc)?;
     let f = |x: Option<f64>| x.map_or(String::new(), |v| format!("{v:.6}"));
     for v in &c.variants {
-        let bands = c
-            .bands
-            .as_ref()
-            .and_then(|b| b.variants.iter().find(|x| x.label == v.label));
+        let bands = c.bands.as_ref().and_then(|b| b.of_variant(&v.label));
         for m in &v.matched {
             let change = bands.and_then(|b| b.change_of(m));
             put(
